@@ -1,0 +1,546 @@
+// permutation.cc: the permutation-test driver and its resampling kernels.
+//
+// Design note.
+// * Layout. The pooled sample is copied once into the engine's buffers. Sum
+//   statistics (mean-diff, welch) work on the pooled values centered on their
+//   mean (the pooled mean does not change under permutation, and centering
+//   keeps sums of squares accurate for data far from zero). Rank and ECDF
+//   statistics (median-diff, ks, cvm, ad) work on positions in ONE ascending
+//   sort of the pooled values, made before resampling; ties are whole tie
+//   groups of that sort, so they are handled exactly (midranks for cvm and
+//   ad, ECDF steps only at group ends for ks).
+// * Drawing. Only the smaller group (size k) is drawn, by a partial
+//   Fisher–Yates shuffle of the pooled buffer in place: k bounded draws
+//   (Lemire) and k swaps. The buffer is never reset: a partial shuffle of any
+//   arrangement yields a uniformly random k-subset, so one buffer serves all
+//   B resamples. Nothing is allocated in the loop.
+// * Per-resample work: O(k) for sum statistics; O(k) marks plus one O(N)
+//   scan of the sorted positions for rank statistics; O(k^2) lookups in a
+//   precomputed distance matrix for energy.
+// * Exact comparisons. ks and cvm are compared on integer-valued forms (the
+//   largest |c_d k_o - c_o k_d| over tie groups, and U), so ties between
+//   splits are exact. For the other statistics a T* within a relative 1e-14
+//   of T_obs counts as an exceedance (SciPy's permutation_test does the
+//   same, with eps = 1e-14).
+// * p-values: exact share of all C(N, k) splits; Phipson & Smyth (2010)
+//   (1 + c) / (1 + B) for Monte Carlo; Besag & Clifford (1991) h / L for
+//   sequential stopping; Clopper–Pearson on (c, L) for the uncertainty.
+#include "core/permutation.h"
+
+#include <algorithm>
+#include <cfloat>
+#include <cmath>
+#include <numeric>
+#include <string>
+
+#include "core/special.h"
+
+namespace plumbline {
+
+namespace {
+
+constexpr double tie_tolerance = 1e-14;
+
+inline bool at_least(double t, double observed) {
+  return t >= observed || t >= observed - tie_tolerance * std::fabs(observed);
+}
+
+std::string count_text(std::size_t n) {
+  return std::to_string(n) + (n == 1 ? " value" : " values");
+}
+
+// One ordered sample's draw: k steps of Fisher–Yates over buf[0..n).
+template <typename T, typename Visit>
+inline void partial_shuffle(T* buf, uint32_t n, uint32_t k, rng& gen, Visit&& visit) {
+  for (uint32_t i = 0; i < k; ++i) {
+    const uint32_t j = i + gen.bounded(n - i);
+    std::swap(buf[i], buf[j]);
+    visit(buf[i]);
+  }
+}
+
+// Next k-combination of {0..n-1} in lexicographic order; false after the last.
+bool next_combination(std::vector<uint32_t>& c, uint32_t n) {
+  const uint32_t k = static_cast<uint32_t>(c.size());
+  uint32_t i = k;
+  while (i > 0 && c[i - 1] == n - k + i - 1) --i;
+  if (i == 0) return false;
+  ++c[i - 1];
+  for (uint32_t j = i; j < k; ++j) c[j] = c[j - 1] + 1;
+  return true;
+}
+
+// Counting: apply `eval` to each split and count those at least as extreme.
+struct tally {
+  uint64_t evaluated = 0;
+  uint64_t exceed = 0;
+  bool stopped = false;
+};
+
+}  // namespace
+
+uint64_t split_count(std::size_t n, std::size_t m) {
+  const std::size_t k = std::min(n, m);
+  const std::size_t total = n + m;
+  __extension__ typedef unsigned __int128 u128;
+  u128 c = 1;
+  for (std::size_t i = 1; i <= k; ++i) {
+    c = c * (total - k + i) / i;  // exact: c * (total-k+i) is divisible by i
+    if (c > UINT64_MAX) return UINT64_MAX;
+  }
+  return static_cast<uint64_t>(c);
+}
+
+namespace {
+
+// The common driver. `Kernel` provides:
+//   double observed();                   statistic for the actual split
+//   double exact(const uint32_t* c, k);  statistic for the split whose drawn
+//                                        group is the combination c
+//   double draw(rng&);                   statistic for one random split
+// The values returned are in "comparison form": larger means more extreme.
+template <typename Kernel>
+tally drive(Kernel& kernel, bool exact, uint32_t n_total, uint32_t k, uint64_t resamples,
+            uint64_t stop_after, std::vector<uint32_t>& subset, rng& gen, double observed) {
+  tally t;
+  if (exact) {
+    subset.resize(k);
+    std::iota(subset.begin(), subset.end(), 0u);
+    do {
+      ++t.evaluated;
+      if (at_least(kernel.exact(subset.data(), k), observed)) ++t.exceed;
+    } while (next_combination(subset, n_total));
+    return t;
+  }
+  for (uint64_t b = 0; b < resamples; ++b) {
+    ++t.evaluated;
+    if (at_least(kernel.draw(gen), observed)) {
+      ++t.exceed;
+      if (stop_after != 0 && t.exceed >= stop_after) {
+        t.stopped = true;
+        break;
+      }
+    }
+  }
+  return t;
+}
+
+// mean-diff and welch: sums over the drawn group of centered values.
+struct sum_kernel {
+  test_kind kind;
+  double* values;  // centered pooled values, shuffled in place by draw()
+  const double* fixed;  // centered pooled values in pooled order (exact mode)
+  uint32_t n_total, k;
+  double total, total_sq;
+  bool drawn_is_recent;
+
+  double finish(double s, double q) const {
+    const double kd = k, ko = n_total - k;
+    const double mean_d = s / kd, mean_o = (total - s) / ko;
+    double diff = drawn_is_recent ? mean_d - mean_o : mean_o - mean_d;
+    if (kind == test_kind::mean_diff) return std::fabs(diff);
+    const double var_d = std::max(0.0, (q - s * s / kd) / (kd - 1));
+    const double so = total - s;
+    const double var_o = std::max(0.0, (total_sq - q - so * so / ko) / (ko - 1));
+    const double se = std::sqrt(var_d / kd + var_o / ko);
+    if (se == 0) return diff == 0 ? 0.0 : DBL_MAX;
+    return std::fabs(diff / se);
+  }
+  double exact(const uint32_t* c, uint32_t kk) const {
+    double s = 0, q = 0;
+    for (uint32_t i = 0; i < kk; ++i) {
+      const double v = fixed[c[i]];
+      s += v;
+      q += v * v;
+    }
+    return finish(s, q);
+  }
+  double draw(rng& gen) {
+    double s = 0, q = 0;
+    if (kind == test_kind::mean_diff) {
+      partial_shuffle(values, n_total, k, gen, [&](double v) { s += v; });
+    } else {
+      partial_shuffle(values, n_total, k, gen, [&](double v) {
+        s += v;
+        q += v * v;
+      });
+    }
+    return finish(s, q);
+  }
+};
+
+// median-diff, ks, cvm, ad: marks over positions of the one sorted copy.
+struct rank_kernel {
+  test_kind kind;
+  const double* sorted;
+  uint8_t* mark;
+  uint32_t* positions;  // shuffled in place by draw()
+  const uint32_t* group_end;
+  const double* midrank;
+  const double* ad_coef;
+  const double* ad_b;
+  uint32_t groups, n_total, k;
+
+  double scan() const {
+    const uint32_t kd = k, ko = n_total - k;
+    switch (kind) {
+      case test_kind::ks: {
+        int64_t best = 0, cd = 0;
+        uint32_t i = 0;
+        for (uint32_t g = 0; g < groups; ++g) {
+          const uint32_t end = group_end[g];
+          for (; i < end; ++i) cd += mark[i];
+          const int64_t co = static_cast<int64_t>(end) - cd;
+          const int64_t diff = cd * static_cast<int64_t>(ko) - co * static_cast<int64_t>(kd);
+          best = std::max(best, diff < 0 ? -diff : diff);
+        }
+        return static_cast<double>(best);
+      }
+      case test_kind::cvm: {
+        double ud = 0, uo = 0, id = 0, io = 0;
+        uint32_t i = 0;
+        for (uint32_t g = 0; g < groups; ++g) {
+          const double r = midrank[g];
+          for (const uint32_t end = group_end[g]; i < end; ++i) {
+            const double d = mark[i];
+            id += d;
+            io += 1 - d;
+            const double e = r - (mark[i] ? id : io);
+            ud += d * e * e;
+            uo += (1 - d) * e * e;
+          }
+        }
+        return static_cast<double>(kd) * ud + static_cast<double>(ko) * uo;
+      }
+      case test_kind::ad: {
+        const double big_n = n_total;
+        double sd = 0, so = 0;
+        uint32_t cum_d = 0, i = 0;
+        for (uint32_t g = 0; g < groups; ++g) {
+          const uint32_t start = i, end = group_end[g];
+          uint32_t fd = 0;
+          for (; i < end; ++i) fd += mark[i];
+          cum_d += fd;
+          const uint32_t fo = (end - start) - fd;
+          const double mad = cum_d - fd / 2.0;
+          const double mao = (end - cum_d) - fo / 2.0;
+          const double b = ad_b[g];
+          const double nd = big_n * mad - b * kd, no = big_n * mao - b * ko;
+          sd += ad_coef[g] * nd * nd;
+          so += ad_coef[g] * no * no;
+        }
+        return (sd / kd + so / ko) * (big_n - 1) / big_n;
+      }
+      case test_kind::median_diff: {
+        // Order statistics (0-based) of each group's median.
+        const uint32_t d1 = (kd - 1) / 2, d2 = kd / 2, o1 = (ko - 1) / 2, o2 = ko / 2;
+        double vd1 = 0, vd2 = 0, vo1 = 0, vo2 = 0;
+        uint32_t cd = 0, co = 0;
+        for (uint32_t i = 0; i < n_total && (cd <= d2 || co <= o2); ++i) {
+          if (mark[i]) {
+            if (cd == d1) vd1 = sorted[i];
+            if (cd == d2) vd2 = sorted[i];
+            ++cd;
+          } else {
+            if (co == o1) vo1 = sorted[i];
+            if (co == o2) vo2 = sorted[i];
+            ++co;
+          }
+        }
+        return std::fabs((vd1 + vd2) / 2 - (vo1 + vo2) / 2);
+      }
+      default: return 0;
+    }
+  }
+  double exact(const uint32_t* c, uint32_t kk) const {
+    for (uint32_t i = 0; i < kk; ++i) mark[c[i]] = 1;
+    const double t = scan();
+    for (uint32_t i = 0; i < kk; ++i) mark[c[i]] = 0;
+    return t;
+  }
+  double draw(rng& gen) {
+    partial_shuffle(positions, n_total, k, gen, [&](uint32_t p) { mark[p] = 1; });
+    const double t = scan();
+    for (uint32_t i = 0; i < k; ++i) mark[positions[i]] = 0;
+    return t;
+  }
+};
+
+// energy: sums of a precomputed distance matrix over the drawn group.
+struct energy_kernel {
+  const Eigen::MatrixXd* dist;  // symmetric, zero diagonal
+  const double* rowsum;
+  uint32_t* positions;
+  uint32_t n_total, k;
+  double total;  // sum of all entries
+
+  double finish(const uint32_t* c, uint32_t kk) const {
+    double s_dd = 0, r_d = 0;
+    for (uint32_t a = 0; a < kk; ++a) {
+      const double* col = dist->data() + static_cast<std::ptrdiff_t>(c[a]) * dist->rows();
+      r_d += rowsum[c[a]];
+      for (uint32_t b = a + 1; b < kk; ++b) s_dd += col[c[b]];
+    }
+    s_dd *= 2;
+    const double s_do = r_d - s_dd;
+    const double s_oo = total - s_dd - 2 * s_do;
+    const double kd = kk, ko = n_total - kk;
+    return kd * ko / n_total * (2 * s_do / (kd * ko) - s_dd / (kd * kd) - s_oo / (ko * ko));
+  }
+  double exact(const uint32_t* c, uint32_t kk) const { return finish(c, kk); }
+  double draw(rng& gen) {
+    partial_shuffle(positions, n_total, k, gen, [](uint32_t) {});
+    return finish(positions, k);
+  }
+};
+
+expected<bool> check_options(const permutation_options& o) {
+  if (o.resamples < 1 || o.resamples > max_resamples)
+    return make_error("resamples must be between 1 and " + std::to_string(max_resamples) +
+                      ", got " + std::to_string(o.resamples));
+  if (!(o.ci_level > 0 && o.ci_level < 1))
+    return make_error("the p-value interval level must lie strictly between 0 and 1");
+  if (o.exact_limit > max_exact_splits)
+    return make_error("the exact-enumeration limit must be at most " +
+                      std::to_string(max_exact_splits));
+  return true;
+}
+
+expected<bool> check_sample(const double* data, std::size_t count, std::size_t rows,
+                            const char* side) {
+  if (rows < 2)
+    return make_error(std::string(side) + " sample has " + count_text(rows) +
+                      "; at least 2 are needed");
+  if (rows > (1u << 30))
+    return make_error(std::string(side) + " sample is too large (more than 2^30 values)");
+  for (std::size_t i = 0; i < count; ++i)
+    if (!std::isfinite(data[i]))
+      return make_error(std::string(side) + " sample holds a value that is NaN or infinite");
+  return true;
+}
+
+// Fills the result's p-value fields from a tally.
+void finish_result(permutation_result& r, const tally& t, bool exact, uint64_t stop_after,
+                   double level) {
+  r.exact = exact;
+  r.resamples = t.evaluated;
+  r.exceedances = t.exceed;
+  r.stopped_early = t.stopped;
+  if (exact) {
+    r.p_value = static_cast<double>(t.exceed) / static_cast<double>(t.evaluated);
+    r.p_low = r.p_high = r.p_value;
+    return;
+  }
+  if (t.stopped)
+    r.p_value = static_cast<double>(stop_after) / static_cast<double>(t.evaluated);
+  else
+    r.p_value = static_cast<double>(t.exceed + 1) / static_cast<double>(t.evaluated + 1);
+  const proportion_interval ci = clopper_pearson(t.exceed, t.evaluated, level);
+  r.p_low = std::min(ci.lower, r.p_value);
+  r.p_high = std::max(ci.upper, r.p_value);
+}
+
+// Decides exact versus Monte Carlo.
+expected<bool> choose_exact(const permutation_options& o, std::size_t n, std::size_t m) {
+  const uint64_t splits = split_count(n, m);
+  switch (o.exact) {
+    case exact_mode::never: return false;
+    case exact_mode::automatic: return splits <= o.exact_limit;
+    case exact_mode::always:
+      if (splits > max_exact_splits)
+        return make_error("exact enumeration would need " +
+                          (splits == UINT64_MAX ? std::string("more than 2^64")
+                                                : std::to_string(splits)) +
+                          " splits; at most " + std::to_string(max_exact_splits) +
+                          " are allowed");
+      return true;
+  }
+  return false;
+}
+
+}  // namespace
+
+expected<permutation_result> permutation_engine::run(std::span<const double> reference,
+                                                     std::span<const double> recent,
+                                                     const permutation_options& options,
+                                                     rng& gen) {
+  if (options.test == test_kind::energy) {
+    const Eigen::Map<const Eigen::MatrixXd> x(reference.data(),
+                                              static_cast<Eigen::Index>(reference.size()), 1);
+    const Eigen::Map<const Eigen::MatrixXd> y(recent.data(),
+                                              static_cast<Eigen::Index>(recent.size()), 1);
+    return run(Eigen::MatrixXd(x), Eigen::MatrixXd(y), options, gen);
+  }
+  if (auto ok = check_options(options); !ok) return ok.err();
+  if (auto ok = check_sample(reference.data(), reference.size(), reference.size(), "reference"); !ok) return ok.err();
+  if (auto ok = check_sample(recent.data(), recent.size(), recent.size(), "recent"); !ok) return ok.err();
+  const std::size_t n = reference.size(), m = recent.size(), big_n = n + m;
+
+  permutation_result r;
+  r.test = options.test;
+  r.n_reference = n;
+  r.n_recent = m;
+
+  sorted_.assign(reference.begin(), reference.end());
+  sorted_.insert(sorted_.end(), recent.begin(), recent.end());
+  std::sort(sorted_.begin(), sorted_.end());
+  if (sorted_.front() == sorted_.back()) {
+    r.constant_data = true;
+    return r;  // statistic 0, p = 1, no resamples
+  }
+  auto exact = choose_exact(options, n, m);
+  if (!exact) return exact.err();
+  r.statistic = statistic_value(options.test, reference, recent);
+
+  const bool drawn_is_recent = m <= n;
+  const auto drawn = drawn_is_recent ? recent : reference;
+  const auto other = drawn_is_recent ? reference : recent;
+  const uint32_t k = static_cast<uint32_t>(drawn.size());
+  const uint32_t nt = static_cast<uint32_t>(big_n);
+
+  tally t;
+  if (options.test == test_kind::mean_diff || options.test == test_kind::welch) {
+    // Pooled order: drawn group first, so the identity split is c = 0..k-1.
+    values_.assign(drawn.begin(), drawn.end());
+    values_.insert(values_.end(), other.begin(), other.end());
+    double c = 0;
+    for (double v : values_) c += v;
+    c /= static_cast<double>(big_n);
+    double total = 0, total_sq = 0;
+    for (double& v : values_) {
+      v -= c;
+      total += v;
+      total_sq += v * v;
+    }
+    pooled_.assign(values_.begin(), values_.end());  // pooled order, for exact mode
+    sum_kernel kern{options.test, values_.data(), pooled_.data(), nt, k, total, total_sq,
+                    drawn_is_recent};
+    subset_.resize(k);
+    std::iota(subset_.begin(), subset_.end(), 0u);
+    const double observed = kern.exact(subset_.data(), k);
+    t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after, subset_, gen,
+              observed);
+  } else {
+    // Tie groups of the sorted pooled values.
+    group_end_.clear();
+    for (uint32_t i = 1; i <= nt; ++i)
+      if (i == nt || sorted_[i] != sorted_[i - 1]) group_end_.push_back(i);
+    const uint32_t groups = static_cast<uint32_t>(group_end_.size());
+    midrank_.resize(groups);
+    ad_coef_.resize(groups);
+    ad_b_.resize(groups);
+    for (uint32_t g = 0, start = 0; g < groups; start = group_end_[g++]) {
+      const double left = start, lj = group_end_[g] - start, bn = nt;
+      midrank_[g] = (left + 1 + group_end_[g]) / 2;
+      ad_b_[g] = left + lj / 2;
+      ad_coef_[g] = lj / bn / (ad_b_[g] * (bn - ad_b_[g]) - bn * lj / 4);
+    }
+    mark_.assign(nt, 0);
+    positions_.resize(nt);
+    std::iota(positions_.begin(), positions_.end(), 0u);
+    rank_kernel kern{options.test, sorted_.data(), mark_.data(), positions_.data(),
+                     group_end_.data(), midrank_.data(), ad_coef_.data(), ad_b_.data(),
+                     groups, nt, k};
+    // The observed split: each drawn value takes a distinct sorted position
+    // among those holding its value (which one is immaterial: every scan
+    // depends only on counts per tie group).
+    subset_.clear();
+    {
+      pooled_.assign(drawn.begin(), drawn.end());
+      std::sort(pooled_.begin(), pooled_.end());
+      uint32_t pos = 0;
+      for (double v : pooled_) {
+        while (sorted_[pos] < v) ++pos;
+        subset_.push_back(pos++);
+      }
+    }
+    const double observed = kern.exact(subset_.data(), k);
+    t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after, subset_, gen,
+              observed);
+  }
+  finish_result(r, t, exact.value(), options.stop_after, options.ci_level);
+  return r;
+}
+
+expected<permutation_result> permutation_engine::run(const Eigen::MatrixXd& reference,
+                                                     const Eigen::MatrixXd& recent,
+                                                     const permutation_options& options,
+                                                     rng& gen) {
+  if (options.test != test_kind::energy) {
+    if (reference.cols() != 1 || recent.cols() != 1)
+      return make_error("test " + std::string(test_name(options.test)) +
+                        " takes one value per sample; use energy for rows of several values");
+    return run(std::span<const double>(reference.data(), static_cast<std::size_t>(reference.rows())),
+               std::span<const double>(recent.data(), static_cast<std::size_t>(recent.rows())),
+               options, gen);
+  }
+  if (auto ok = check_options(options); !ok) return ok.err();
+  if (reference.cols() != recent.cols())
+    return make_error("reference rows have " + std::to_string(reference.cols()) +
+                      " values but recent rows have " + std::to_string(recent.cols()));
+  if (reference.cols() < 1) return make_error("rows must hold at least one value");
+  const std::size_t n = static_cast<std::size_t>(reference.rows());
+  const std::size_t m = static_cast<std::size_t>(recent.rows());
+  if (auto ok = check_sample(reference.data(), static_cast<std::size_t>(reference.size()), n, "reference"); !ok) return ok.err();
+  if (auto ok = check_sample(recent.data(), static_cast<std::size_t>(recent.size()), m, "recent"); !ok) return ok.err();
+  const std::size_t big_n = n + m;
+  if (big_n > max_energy_pooled)
+    return make_error("the energy test takes at most " + std::to_string(max_energy_pooled) +
+                      " pooled rows, got " + std::to_string(big_n));
+
+  permutation_result r;
+  r.test = options.test;
+  r.n_reference = n;
+  r.n_recent = m;
+
+  const bool drawn_is_recent = m <= n;
+  const Eigen::MatrixXd& drawn = drawn_is_recent ? recent : reference;
+  const Eigen::MatrixXd& other = drawn_is_recent ? reference : recent;
+  Eigen::MatrixXd pooled(static_cast<Eigen::Index>(big_n), reference.cols());
+  pooled << drawn, other;
+  bool constant = true;
+  for (Eigen::Index i = 1; i < pooled.rows() && constant; ++i)
+    constant = (pooled.row(i).array() == pooled.row(0).array()).all();
+  if (constant) {
+    r.constant_data = true;
+    return r;
+  }
+  auto exact = choose_exact(options, n, m);
+  if (!exact) return exact.err();
+  r.statistic = energy_statistic(reference, recent);
+
+  const Eigen::Index nn = pooled.rows();
+  dist_.resize(nn, nn);
+  dist_rowsum_.resize(nn);
+  for (Eigen::Index j = 0; j < nn; ++j) {
+    dist_(j, j) = 0;
+    for (Eigen::Index i = j + 1; i < nn; ++i)
+      dist_(i, j) = dist_(j, i) = (pooled.row(i) - pooled.row(j)).norm();
+  }
+  double total = 0;
+  for (Eigen::Index j = 0; j < nn; ++j) {
+    dist_rowsum_(j) = dist_.col(j).sum();
+    total += dist_rowsum_(j);
+  }
+  const uint32_t k = static_cast<uint32_t>(drawn.rows());
+  const uint32_t nt = static_cast<uint32_t>(big_n);
+  positions_.resize(nt);
+  std::iota(positions_.begin(), positions_.end(), 0u);
+  energy_kernel kern{&dist_, dist_rowsum_.data(), positions_.data(), nt, k, total};
+  subset_.resize(k);
+  std::iota(subset_.begin(), subset_.end(), 0u);
+  const double observed = kern.exact(subset_.data(), k);
+  const tally t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after,
+                        subset_, gen, observed);
+  finish_result(r, t, exact.value(), options.stop_after, options.ci_level);
+  return r;
+}
+
+expected<permutation_result> permutation_test(std::span<const double> reference,
+                                              std::span<const double> recent,
+                                              const permutation_options& options, rng& gen) {
+  permutation_engine engine;
+  return engine.run(reference, recent, options, gen);
+}
+
+}  // namespace plumbline

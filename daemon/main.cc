@@ -1,0 +1,39 @@
+// main.cc: the `plumbline` command line. Subcommands are declared in their
+// own files; exceptions are caught only here.
+#include <CLI/CLI.hpp>
+#include <exception>
+#include <iostream>
+
+#include "daemon/compare.h"
+
+#ifndef PLUMBLINE_VERSION
+#define PLUMBLINE_VERSION "0.0.0"
+#endif
+
+int main(int argc, char** argv) {
+  CLI::App app{"plumbline: streaming quality monitoring with permutation tests and bootstrap "
+               "drift intervals"};
+  app.set_version_flag("--version", std::string("plumbline ") + PLUMBLINE_VERSION);
+  app.require_subcommand(1);
+  plumbline::compare_args compare;
+  CLI::App* compare_cmd = plumbline::add_compare_command(app, compare);
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::CallForHelp& e) {
+    return app.exit(e);
+  } catch (const CLI::CallForAllHelp& e) {
+    return app.exit(e);
+  } catch (const CLI::CallForVersion& e) {
+    return app.exit(e);
+  } catch (const CLI::ParseError& e) {
+    std::cerr << "plumbline: " << e.what() << " (see plumbline --help)\n";
+    return 2;
+  }
+  try {
+    if (compare_cmd->parsed()) return plumbline::run_compare(compare);
+  } catch (const std::exception& e) {
+    std::cerr << "plumbline: internal error: " << e.what() << "\n";
+    return 1;
+  }
+  return 2;
+}
