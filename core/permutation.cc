@@ -49,14 +49,43 @@ std::string count_text(std::size_t n) {
   return std::to_string(n) + (n == 1 ? " value" : " values");
 }
 
-// One ordered sample's draw: k steps of Fisher–Yates over buf[0..n).
-template <typename T, typename Visit>
-inline void partial_shuffle(T* buf, uint32_t n, uint32_t k, rng& gen, Visit&& visit) {
+// One resample's partial Fisher–Yates shuffle of buf[0..n): k swaps with
+// positions drawn in bulk (rng::bounded_descending gives the same numbers as
+// k bounded() calls). Afterwards buf[0..k) is a uniform random k-subset.
+template <typename T>
+inline void partial_shuffle(T* buf, uint32_t* draws, uint32_t n, uint32_t k, rng& gen) {
+  gen.bounded_descending(draws, n, k);
   for (uint32_t i = 0; i < k; ++i) {
-    const uint32_t j = i + gen.bounded(n - i);
-    std::swap(buf[i], buf[j]);
-    visit(buf[i]);
+    const uint32_t j = i + draws[i];
+    const T t = buf[j];
+    buf[j] = buf[i];
+    buf[i] = t;
   }
+}
+
+// Sum and sum of squares of v[0..k) with four accumulators (a fixed order,
+// so results are reproducible; the four chains also hide add latency).
+inline void sums(const double* v, uint32_t k, double& s, double& q, bool need_q) {
+  double s0 = 0, s1 = 0, s2 = 0, s3 = 0, q0 = 0, q1 = 0, q2 = 0, q3 = 0;
+  uint32_t i = 0;
+  for (; i + 4 <= k; i += 4) {
+    s0 += v[i];
+    s1 += v[i + 1];
+    s2 += v[i + 2];
+    s3 += v[i + 3];
+    if (need_q) {
+      q0 += v[i] * v[i];
+      q1 += v[i + 1] * v[i + 1];
+      q2 += v[i + 2] * v[i + 2];
+      q3 += v[i + 3] * v[i + 3];
+    }
+  }
+  for (; i < k; ++i) {
+    s0 += v[i];
+    if (need_q) q0 += v[i] * v[i];
+  }
+  s = (s0 + s1) + (s2 + s3);
+  q = (q0 + q1) + (q2 + q3);
 }
 
 // Next k-combination of {0..n-1} in lexicographic order; false after the last.
@@ -129,7 +158,9 @@ tally drive(Kernel& kernel, bool exact, uint32_t n_total, uint32_t k, uint64_t r
 struct sum_kernel {
   test_kind kind;
   double* values;  // centered pooled values, shuffled in place by draw()
+  uint32_t* draws;
   const double* fixed;  // centered pooled values in pooled order (exact mode)
+  double* scratch;      // k values (exact mode)
   uint32_t n_total, k;
   double total, total_sq;
   bool drawn_is_recent;
@@ -147,24 +178,16 @@ struct sum_kernel {
     return std::fabs(diff / se);
   }
   double exact(const uint32_t* c, uint32_t kk) const {
-    double s = 0, q = 0;
-    for (uint32_t i = 0; i < kk; ++i) {
-      const double v = fixed[c[i]];
-      s += v;
-      q += v * v;
-    }
+    // Gather so that the summation order matches draw()'s.
+    for (uint32_t i = 0; i < kk; ++i) scratch[i] = fixed[c[i]];
+    double s, q;
+    sums(scratch, kk, s, q, kind == test_kind::welch);
     return finish(s, q);
   }
   double draw(rng& gen) {
-    double s = 0, q = 0;
-    if (kind == test_kind::mean_diff) {
-      partial_shuffle(values, n_total, k, gen, [&](double v) { s += v; });
-    } else {
-      partial_shuffle(values, n_total, k, gen, [&](double v) {
-        s += v;
-        q += v * v;
-      });
-    }
+    partial_shuffle(values, draws, n_total, k, gen);
+    double s, q;
+    sums(values, k, s, q, kind == test_kind::welch);
     return finish(s, q);
   }
 };
@@ -175,6 +198,7 @@ struct rank_kernel {
   const double* sorted;
   uint8_t* mark;
   uint32_t* positions;  // shuffled in place by draw()
+  uint32_t* draws;
   const uint32_t* group_end;
   const double* midrank;
   const double* ad_coef;
@@ -185,13 +209,24 @@ struct rank_kernel {
     const uint32_t kd = k, ko = n_total - k;
     switch (kind) {
       case test_kind::ks: {
+        // F_d - F_o at a group ending at e equals (c_d N - e k_d) / (k_d k_o).
+        const int64_t big_n = n_total, kdi = kd;
+        if (groups == n_total) {  // no ties: every position ends a group
+          int64_t cd = 0, hi = 0, lo = 0;
+          for (uint32_t i = 0; i < n_total; ++i) {
+            cd += mark[i];
+            const int64_t v = cd * big_n - static_cast<int64_t>(i + 1) * kdi;
+            hi = std::max(hi, v);
+            lo = std::min(lo, v);
+          }
+          return static_cast<double>(std::max(hi, -lo));
+        }
         int64_t best = 0, cd = 0;
         uint32_t i = 0;
         for (uint32_t g = 0; g < groups; ++g) {
           const uint32_t end = group_end[g];
           for (; i < end; ++i) cd += mark[i];
-          const int64_t co = static_cast<int64_t>(end) - cd;
-          const int64_t diff = cd * static_cast<int64_t>(ko) - co * static_cast<int64_t>(kd);
+          const int64_t diff = cd * big_n - static_cast<int64_t>(end) * kdi;
           best = std::max(best, diff < 0 ? -diff : diff);
         }
         return static_cast<double>(best);
@@ -259,7 +294,8 @@ struct rank_kernel {
     return t;
   }
   double draw(rng& gen) {
-    partial_shuffle(positions, n_total, k, gen, [&](uint32_t p) { mark[p] = 1; });
+    partial_shuffle(positions, draws, n_total, k, gen);
+    for (uint32_t i = 0; i < k; ++i) mark[positions[i]] = 1;
     const double t = scan();
     for (uint32_t i = 0; i < k; ++i) mark[positions[i]] = 0;
     return t;
@@ -271,6 +307,7 @@ struct energy_kernel {
   const Eigen::MatrixXd* dist;  // symmetric, zero diagonal
   const double* rowsum;
   uint32_t* positions;
+  uint32_t* draws;
   uint32_t n_total, k;
   double total;  // sum of all entries
 
@@ -289,7 +326,7 @@ struct energy_kernel {
   }
   double exact(const uint32_t* c, uint32_t kk) const { return finish(c, kk); }
   double draw(rng& gen) {
-    partial_shuffle(positions, n_total, k, gen, [](uint32_t) {});
+    partial_shuffle(positions, draws, n_total, k, gen);
     return finish(positions, k);
   }
 };
@@ -413,8 +450,10 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
       total_sq += v * v;
     }
     pooled_.assign(values_.begin(), values_.end());  // pooled order, for exact mode
-    sum_kernel kern{options.test, values_.data(), pooled_.data(), nt, k, total, total_sq,
-                    drawn_is_recent};
+    draws_.resize(k);
+    sorted_.resize(k);  // no longer needed sorted: scratch for exact mode
+    sum_kernel kern{options.test, values_.data(), draws_.data(), pooled_.data(),
+                    sorted_.data(), nt, k, total, total_sq, drawn_is_recent};
     subset_.resize(k);
     std::iota(subset_.begin(), subset_.end(), 0u);
     const double observed = kern.exact(subset_.data(), k);
@@ -438,8 +477,9 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
     mark_.assign(nt, 0);
     positions_.resize(nt);
     std::iota(positions_.begin(), positions_.end(), 0u);
+    draws_.resize(k);
     rank_kernel kern{options.test, sorted_.data(), mark_.data(), positions_.data(),
-                     group_end_.data(), midrank_.data(), ad_coef_.data(), ad_b_.data(),
+                     draws_.data(), group_end_.data(), midrank_.data(), ad_coef_.data(), ad_b_.data(),
                      groups, nt, k};
     // The observed split: each drawn value takes a distinct sorted position
     // among those holding its value (which one is immaterial: every scan
@@ -526,7 +566,9 @@ expected<permutation_result> permutation_engine::run(const Eigen::MatrixXd& refe
   const uint32_t nt = static_cast<uint32_t>(big_n);
   positions_.resize(nt);
   std::iota(positions_.begin(), positions_.end(), 0u);
-  energy_kernel kern{&dist_, dist_rowsum_.data(), positions_.data(), nt, k, total};
+  draws_.resize(k);
+  energy_kernel kern{&dist_, dist_rowsum_.data(), positions_.data(), draws_.data(), nt, k,
+                     total};
   subset_.resize(k);
   std::iota(subset_.begin(), subset_.end(), 0u);
   const double observed = kern.exact(subset_.data(), k);

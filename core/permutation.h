@@ -96,6 +96,7 @@ class permutation_engine {
   std::vector<double> pooled_;       // pooled values in pooled order / scratch
   std::vector<uint32_t> positions_;  // positions into sorted_, shuffled in place
   std::vector<uint32_t> subset_;     // exact enumeration: current combination
+  std::vector<uint32_t> draws_;      // one resample's bounded draws
   std::vector<uint8_t> mark_;        // 1 where a sorted position is in the drawn group
   std::vector<uint32_t> group_end_;  // tie groups: one past the last position
   std::vector<double> midrank_;      // per tie group: 1-based midrank

@@ -21,6 +21,8 @@
 //                   multiply-and-reject method ("Fast random integer generation
 //                   in an interval", ACM TOMACS 2019). Exact, no modulo bias.
 //   next_double()   uniform on [0, 1) on the grid k / 2^53 (top 53 bits).
+// A next_u64() or next_double() after an odd number of next_u32() calls
+// discards the pending high half; the stream stays fully determined.
 //
 // Thread-safety: none. An `rng` belongs to one thread (one evaluation); the
 // daemon gives each stream its own. Never global: always passed in.
@@ -118,6 +120,11 @@ class rng {
   }
 
   double next_double() { return static_cast<double>(next_u64() >> 11) * 0x1.0p-53; }
+
+  // out[i] = bounded(n - i) for i in [0, k): exactly the numbers k successive
+  // bounded() calls would return (the draws of a partial Fisher–Yates
+  // shuffle), computed a block at a time. REQUIRES: k <= n.
+  void bounded_descending(uint32_t* out, uint32_t n, uint32_t k);
 
   state_type state() const;
   void restore(const state_type& s);
