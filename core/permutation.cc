@@ -33,6 +33,7 @@
 #include <numeric>
 #include <string>
 
+#include "core/dependence.h"
 #include "core/special.h"
 
 namespace plumbline {
@@ -144,6 +145,53 @@ tally drive(Kernel& kernel, bool exact, uint32_t n_total, uint32_t k, uint64_t r
   for (uint64_t b = 0; b < resamples; ++b) {
     ++t.evaluated;
     if (at_least(kernel.draw(gen), observed)) {
+      ++t.exceed;
+      if (stop_after != 0 && t.exceed >= stop_after) {
+        t.stopped = true;
+        break;
+      }
+    }
+  }
+  return t;
+}
+
+// Block mode: the units are `blocks` blocks of `len` pooled values each;
+// members[b * len + t] is the kernel position of value t of block b. Each
+// split draws kb blocks and hands the kernel their expanded positions.
+struct block_plan {
+  const uint32_t* members;
+  uint32_t* units;     // block ids, shuffled in place
+  uint32_t* draws;
+  uint32_t* expanded;  // kb * len positions
+  uint32_t blocks, kb, len;
+};
+
+template <typename Kernel>
+tally drive_blocks(Kernel& kernel, bool exact, const block_plan& p, uint64_t resamples,
+                   uint64_t stop_after, std::vector<uint32_t>& subset, rng& gen,
+                   double observed) {
+  tally t;
+  const uint32_t k = p.kb * p.len;
+  auto expand = [&](const uint32_t* ids) {
+    for (uint32_t b = 0; b < p.kb; ++b)
+      for (uint32_t i = 0; i < p.len; ++i)
+        p.expanded[b * p.len + i] = p.members[ids[b] * p.len + i];
+  };
+  if (exact) {
+    subset.resize(p.kb);
+    std::iota(subset.begin(), subset.end(), 0u);
+    do {
+      ++t.evaluated;
+      expand(subset.data());
+      if (at_least(kernel.exact(p.expanded, k), observed)) ++t.exceed;
+    } while (next_combination(subset, p.blocks));
+    return t;
+  }
+  for (uint64_t b = 0; b < resamples; ++b) {
+    ++t.evaluated;
+    partial_shuffle(p.units, p.draws, p.blocks, p.kb, gen);
+    expand(p.units);
+    if (at_least(kernel.exact(p.expanded, k), observed)) {
       ++t.exceed;
       if (stop_after != 0 && t.exceed >= stop_after) {
         t.stopped = true;
@@ -397,6 +445,29 @@ expected<bool> choose_exact(const permutation_options& o, std::size_t n, std::si
 
 }  // namespace
 
+namespace {
+
+// Resolves options.block_length (0 = automatic) for windows in time order.
+uint32_t resolve_block(uint32_t requested, std::span<const double> x, std::span<const double> y) {
+  if (requested != 0) return requested;
+  const dependence_summary dx = measure_dependence(x), dy = measure_dependence(y);
+  if (!dx.dependent && !dy.dependent) return 1;
+  const double b = std::ceil(std::max(dx.block_circular, dy.block_circular));
+  return b < 2 ? 1 : static_cast<uint32_t>(b);
+}
+
+// Block mode keeps each window's newest multiple of L values.
+expected<bool> check_blocks(std::size_t n, std::size_t m, uint32_t len) {
+  if (len <= 1) return true;
+  for (auto [size, side] : {std::pair{n, "reference"}, std::pair{m, "recent"}})
+    if (size / len < 2)
+      return make_error(std::string(side) + " sample has " + count_text(size) +
+                        ": fewer than 2 blocks of " + std::to_string(len));
+  return true;
+}
+
+}  // namespace
+
 expected<permutation_result> permutation_engine::run(std::span<const double> reference,
                                                      std::span<const double> recent,
                                                      const permutation_options& options,
@@ -409,14 +480,24 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
     return run(Eigen::MatrixXd(x), Eigen::MatrixXd(y), options, gen);
   }
   if (auto ok = check_options(options); !ok) return ok.err();
-  if (auto ok = check_sample(reference.data(), reference.size(), reference.size(), "reference"); !ok) return ok.err();
-  if (auto ok = check_sample(recent.data(), recent.size(), recent.size(), "recent"); !ok) return ok.err();
+  if (auto ok = check_sample(reference.data(), reference.size(), reference.size(), "reference");
+      !ok)
+    return ok.err();
+  if (auto ok = check_sample(recent.data(), recent.size(), recent.size(), "recent"); !ok)
+    return ok.err();
+  const uint32_t len = resolve_block(options.block_length, reference, recent);
+  if (auto ok = check_blocks(reference.size(), recent.size(), len); !ok) return ok.err();
+  if (len > 1) {
+    reference = reference.last(reference.size() - reference.size() % len);
+    recent = recent.last(recent.size() - recent.size() % len);
+  }
   const std::size_t n = reference.size(), m = recent.size(), big_n = n + m;
 
   permutation_result r;
   r.test = options.test;
   r.n_reference = n;
   r.n_recent = m;
+  r.block_length = len;
 
   sorted_.assign(reference.begin(), reference.end());
   sorted_.insert(sorted_.end(), recent.begin(), recent.end());
@@ -425,7 +506,7 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
     r.constant_data = true;
     return r;  // statistic 0, p = 1, no resamples
   }
-  auto exact = choose_exact(options, n, m);
+  auto exact = choose_exact(options, n / len, m / len);
   if (!exact) return exact.err();
   r.statistic = statistic_value(options.test, reference, recent);
 
@@ -434,31 +515,47 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
   const auto other = drawn_is_recent ? reference : recent;
   const uint32_t k = static_cast<uint32_t>(drawn.size());
   const uint32_t nt = static_cast<uint32_t>(big_n);
+  // Pooled order: the drawn group first, so the observed split is 0..k-1.
+  pooled_.assign(drawn.begin(), drawn.end());
+  pooled_.insert(pooled_.end(), other.begin(), other.end());
+  draws_.resize(std::max(k, nt / len));
+
+  // Runs the kernel over single values or blocks; `position` maps a pooled
+  // index to the kernel's position space.
+  auto run_kernel = [&](auto& kern, auto position) {
+    subset_.resize(k);
+    for (uint32_t i = 0; i < k; ++i) subset_[i] = position(i);
+    const double observed = kern.exact(subset_.data(), k);
+    if (len <= 1)
+      return drive(kern, exact.value(), nt, k, options.resamples, options.stop_after, subset_,
+                   gen, observed);
+    members_.resize(nt);
+    for (uint32_t i = 0; i < nt; ++i) members_[i] = position(i);
+    units_.resize(nt / len);
+    std::iota(units_.begin(), units_.end(), 0u);
+    expanded_.resize(k);
+    const block_plan plan{members_.data(), units_.data(), draws_.data(), expanded_.data(),
+                          nt / len, k / len, len};
+    return drive_blocks(kern, exact.value(), plan, options.resamples, options.stop_after,
+                        subset_, gen, observed);
+  };
 
   tally t;
   if (options.test == test_kind::mean_diff || options.test == test_kind::welch) {
-    // Pooled order: drawn group first, so the identity split is c = 0..k-1.
-    values_.assign(drawn.begin(), drawn.end());
-    values_.insert(values_.end(), other.begin(), other.end());
     double c = 0;
-    for (double v : values_) c += v;
+    for (double v : pooled_) c += v;
     c /= static_cast<double>(big_n);
     double total = 0, total_sq = 0;
-    for (double& v : values_) {
+    for (double& v : pooled_) {
       v -= c;
       total += v;
       total_sq += v * v;
     }
-    pooled_.assign(values_.begin(), values_.end());  // pooled order, for exact mode
-    draws_.resize(k);
-    sorted_.resize(k);  // no longer needed sorted: scratch for exact mode
+    values_.assign(pooled_.begin(), pooled_.end());  // shuffled in place by draw()
+    scratch_.resize(k);
     sum_kernel kern{options.test, values_.data(), draws_.data(), pooled_.data(),
-                    sorted_.data(), nt, k, total, total_sq, drawn_is_recent};
-    subset_.resize(k);
-    std::iota(subset_.begin(), subset_.end(), 0u);
-    const double observed = kern.exact(subset_.data(), k);
-    t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after, subset_, gen,
-              observed);
+                    scratch_.data(), nt, k, total, total_sq, drawn_is_recent};
+    t = run_kernel(kern, [](uint32_t i) { return i; });
   } else {
     // Tie groups of the sorted pooled values.
     group_end_.clear();
@@ -474,29 +571,21 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
       ad_b_[g] = left + lj / 2;
       ad_coef_[g] = lj / bn / (ad_b_[g] * (bn - ad_b_[g]) - bn * lj / 4);
     }
-    mark_.assign(nt, 0);
+    // Sorted position of each pooled value: a stable argsort, so tied values
+    // take distinct positions (which one is immaterial: every scan depends
+    // only on counts per tie group).
     positions_.resize(nt);
     std::iota(positions_.begin(), positions_.end(), 0u);
-    draws_.resize(k);
+    std::stable_sort(positions_.begin(), positions_.end(),
+                     [&](uint32_t a, uint32_t b) { return pooled_[a] < pooled_[b]; });
+    rank_of_.resize(nt);
+    for (uint32_t s = 0; s < nt; ++s) rank_of_[positions_[s]] = s;
+    std::iota(positions_.begin(), positions_.end(), 0u);  // the shuffle buffer
+    mark_.assign(nt, 0);
     rank_kernel kern{options.test, sorted_.data(), mark_.data(), positions_.data(),
-                     draws_.data(), group_end_.data(), midrank_.data(), ad_coef_.data(), ad_b_.data(),
-                     groups, nt, k};
-    // The observed split: each drawn value takes a distinct sorted position
-    // among those holding its value (which one is immaterial: every scan
-    // depends only on counts per tie group).
-    subset_.clear();
-    {
-      pooled_.assign(drawn.begin(), drawn.end());
-      std::sort(pooled_.begin(), pooled_.end());
-      uint32_t pos = 0;
-      for (double v : pooled_) {
-        while (sorted_[pos] < v) ++pos;
-        subset_.push_back(pos++);
-      }
-    }
-    const double observed = kern.exact(subset_.data(), k);
-    t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after, subset_, gen,
-              observed);
+                     draws_.data(), group_end_.data(), midrank_.data(), ad_coef_.data(),
+                     ad_b_.data(), groups, nt, k};
+    t = run_kernel(kern, [&](uint32_t i) { return rank_of_[i]; });
   }
   finish_result(r, t, exact.value(), options.stop_after, options.ci_level);
   return r;
@@ -519,10 +608,32 @@ expected<permutation_result> permutation_engine::run(const Eigen::MatrixXd& refe
     return make_error("reference rows have " + std::to_string(reference.cols()) +
                       " values but recent rows have " + std::to_string(recent.cols()));
   if (reference.cols() < 1) return make_error("rows must hold at least one value");
-  const std::size_t n = static_cast<std::size_t>(reference.rows());
-  const std::size_t m = static_cast<std::size_t>(recent.rows());
-  if (auto ok = check_sample(reference.data(), static_cast<std::size_t>(reference.size()), n, "reference"); !ok) return ok.err();
-  if (auto ok = check_sample(recent.data(), static_cast<std::size_t>(recent.size()), m, "recent"); !ok) return ok.err();
+  if (auto ok = check_sample(reference.data(), static_cast<std::size_t>(reference.size()),
+                             static_cast<std::size_t>(reference.rows()), "reference");
+      !ok)
+    return ok.err();
+  if (auto ok = check_sample(recent.data(), static_cast<std::size_t>(recent.size()),
+                             static_cast<std::size_t>(recent.rows()), "recent");
+      !ok)
+    return ok.err();
+  // Block length: automatic mode takes the largest over the columns.
+  uint32_t len = options.block_length;
+  if (len == 0) {
+    len = 1;
+    for (Eigen::Index c = 0; c < reference.cols(); ++c) {
+      const Eigen::VectorXd xc = reference.col(c), yc = recent.col(c);
+      len = std::max(len, resolve_block(0, std::span<const double>(xc.data(), xc.size()),
+                                        std::span<const double>(yc.data(), yc.size())));
+    }
+  }
+  if (auto ok = check_blocks(static_cast<std::size_t>(reference.rows()),
+                             static_cast<std::size_t>(recent.rows()), len);
+      !ok)
+    return ok.err();
+  const Eigen::Index keep_x = reference.rows() - reference.rows() % len;
+  const Eigen::Index keep_y = recent.rows() - recent.rows() % len;
+  const std::size_t n = static_cast<std::size_t>(keep_x);
+  const std::size_t m = static_cast<std::size_t>(keep_y);
   const std::size_t big_n = n + m;
   if (big_n > max_energy_pooled)
     return make_error("the energy test takes at most " + std::to_string(max_energy_pooled) +
@@ -532,10 +643,13 @@ expected<permutation_result> permutation_engine::run(const Eigen::MatrixXd& refe
   r.test = options.test;
   r.n_reference = n;
   r.n_recent = m;
+  r.block_length = len;
 
   const bool drawn_is_recent = m <= n;
-  const Eigen::MatrixXd& drawn = drawn_is_recent ? recent : reference;
-  const Eigen::MatrixXd& other = drawn_is_recent ? reference : recent;
+  const auto x = reference.bottomRows(keep_x);
+  const auto y = recent.bottomRows(keep_y);
+  const Eigen::MatrixXd drawn = drawn_is_recent ? Eigen::MatrixXd(y) : Eigen::MatrixXd(x);
+  const Eigen::MatrixXd other = drawn_is_recent ? Eigen::MatrixXd(x) : Eigen::MatrixXd(y);
   Eigen::MatrixXd pooled(static_cast<Eigen::Index>(big_n), reference.cols());
   pooled << drawn, other;
   bool constant = true;
@@ -545,9 +659,9 @@ expected<permutation_result> permutation_engine::run(const Eigen::MatrixXd& refe
     r.constant_data = true;
     return r;
   }
-  auto exact = choose_exact(options, n, m);
+  auto exact = choose_exact(options, n / len, m / len);
   if (!exact) return exact.err();
-  r.statistic = energy_statistic(reference, recent);
+  r.statistic = energy_statistic(x, y);
 
   const Eigen::Index nn = pooled.rows();
   dist_.resize(nn, nn);
@@ -572,8 +686,21 @@ expected<permutation_result> permutation_engine::run(const Eigen::MatrixXd& refe
   subset_.resize(k);
   std::iota(subset_.begin(), subset_.end(), 0u);
   const double observed = kern.exact(subset_.data(), k);
-  const tally t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after,
-                        subset_, gen, observed);
+  tally t;
+  if (len <= 1) {
+    t = drive(kern, exact.value(), nt, k, options.resamples, options.stop_after, subset_, gen,
+              observed);
+  } else {
+    members_.resize(nt);
+    std::iota(members_.begin(), members_.end(), 0u);
+    units_.resize(nt / len);
+    std::iota(units_.begin(), units_.end(), 0u);
+    expanded_.resize(k);
+    const block_plan plan{members_.data(), units_.data(), draws_.data(), expanded_.data(),
+                          nt / len, k / len, len};
+    t = drive_blocks(kern, exact.value(), plan, options.resamples, options.stop_after, subset_,
+                     gen, observed);
+  }
   finish_result(r, t, exact.value(), options.stop_after, options.ci_level);
   return r;
 }

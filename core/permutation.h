@@ -21,8 +21,15 @@
 // The Monte Carlo uncertainty of p is reported as a Clopper–Pearson interval
 // on the exceedance count at `ci_level`; for exact p-values both ends equal p.
 //
-// Edge cases. Fewer than 2 values on a side is an error naming the side. A
-// pooled sample that is all one value gives p = 1 and `constant_data`.
+// Blocks. Autocorrelated windows break the exchangeability that the test
+// rests on, and single-value permutations then reject too often. With a block
+// length L, the units permuted are contiguous blocks of L values within each
+// window (the oldest n mod L values of a window are left out), so short-range
+// dependence stays inside the units.
+//
+// Edge cases. Fewer than 2 values (or blocks) on a side is an error naming
+// the side. A pooled sample that is all one value gives p = 1 and
+// `constant_data`.
 //
 // Thread-safety. A `permutation_engine` is not thread-safe; use one per
 // thread. It keeps its buffers between runs, so a long-lived engine allocates
@@ -50,6 +57,12 @@ struct permutation_options {
   uint64_t exact_limit = 100000;    // enumerate when C(N, n) <= this (automatic)
   uint64_t stop_after = 0;          // h for sequential stopping; 0 = off
   double ci_level = 0.99;           // level of the p-value's interval
+  // Blocks for autocorrelated windows: 1 permutes single values; L >= 2
+  // permutes contiguous blocks of L values (each window keeps its newest
+  // multiple of L values, in time order); 0 chooses automatically: 1 unless
+  // either window's lag-1 autocorrelation exceeds 2 standard errors, else the
+  // Politis–White circular-block length (dependence.h), the larger of the two.
+  uint32_t block_length = 1;
 };
 
 // Upper bounds accepted by the engine, whatever the options say.
@@ -69,8 +82,9 @@ struct permutation_result {
   bool exact = false;
   bool stopped_early = false;  // sequential stopping ended the run
   bool constant_data = false;  // the pooled sample is all one value
-  std::size_t n_reference = 0;
+  std::size_t n_reference = 0;  // values used (block mode may leave out the oldest few)
   std::size_t n_recent = 0;
+  uint32_t block_length = 1;    // 1 when single values were permuted
 };
 
 // The number of splits C(n + m, n), saturating at UINT64_MAX.
@@ -97,6 +111,11 @@ class permutation_engine {
   std::vector<uint32_t> positions_;  // positions into sorted_, shuffled in place
   std::vector<uint32_t> subset_;     // exact enumeration: current combination
   std::vector<uint32_t> draws_;      // one resample's bounded draws
+  std::vector<uint32_t> units_;      // block mode: block ids, shuffled in place
+  std::vector<uint32_t> members_;    // block mode: kernel position of each pooled value
+  std::vector<uint32_t> expanded_;   // block mode: positions of the drawn blocks
+  std::vector<uint32_t> rank_of_;    // sorted position of each pooled value
+  std::vector<double> scratch_;      // exact mode: the drawn group's values
   std::vector<uint8_t> mark_;        // 1 where a sorted position is in the drawn group
   std::vector<uint32_t> group_end_;  // tie groups: one past the last position
   std::vector<double> midrank_;      // per tie group: 1-based midrank

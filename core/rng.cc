@@ -58,10 +58,11 @@ void fill_lanes_vector(uint64_t* state /* [word][lane], 16 values */, uint64_t* 
 // word fell below its range, i.e. when the exact method might reject (then
 // the caller redoes the run one draw at a time). Vectorises (vpmuludq).
 PLUMBLINE_TARGET_CLONES
-bool lemire_run(const uint32_t* src, uint32_t* out, uint32_t range0, uint32_t count) {
+bool lemire_run(const uint32_t* src, uint32_t* out, uint32_t range0, uint32_t step,
+                uint32_t count) {
   uint32_t maybe_reject = 0;
   for (uint32_t t = 0; t < count; ++t) {
-    const uint32_t range = range0 - t;
+    const uint32_t range = range0 - step * t;
     const uint64_t m = static_cast<uint64_t>(src[t]) * range;
     out[t] = static_cast<uint32_t>(m >> 32);
     maybe_reject |= static_cast<uint32_t>(static_cast<uint32_t>(m) < range);
@@ -71,11 +72,17 @@ bool lemire_run(const uint32_t* src, uint32_t* out, uint32_t range0, uint32_t co
 
 }  // namespace
 
-void rng::bounded_descending(uint32_t* out, uint32_t n, uint32_t k) {
+void rng::bounded_descending(uint32_t* out, uint32_t n, uint32_t k) { bounded_run(out, n, 1, k); }
+
+void rng::bounded_fill(uint32_t* out, uint32_t range, uint32_t count) {
+  bounded_run(out, range, 0, count);
+}
+
+void rng::bounded_run(uint32_t* out, uint32_t n, uint32_t step, uint32_t k) {
   uint32_t i = 0;
   while (i < k) {
     if (half_ != 0 || pos_ == block || std::endian::native != std::endian::little) {
-      out[i] = bounded(n - i);
+      out[i] = bounded(n - step * i);
       ++i;
       continue;
     }
@@ -85,8 +92,8 @@ void rng::bounded_descending(uint32_t* out, uint32_t n, uint32_t k) {
     const uint32_t count = std::min(avail, k - i);
     uint32_t words[2 * block];
     std::memcpy(words, buf_.data() + pos_, sizeof(uint32_t) * ((count + 1) & ~1u));
-    if (lemire_run(words, out + i, n - i, count)) {
-      for (uint32_t t = 0; t < count; ++t, ++i) out[i] = bounded(n - i);
+    if (lemire_run(words, out + i, n - step * i, step, count)) {
+      for (uint32_t t = 0; t < count; ++t, ++i) out[i] = bounded(n - step * i);
       continue;
     }
     i += count;

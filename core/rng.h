@@ -126,6 +126,11 @@ class rng {
   // shuffle), computed a block at a time. REQUIRES: k <= n.
   void bounded_descending(uint32_t* out, uint32_t n, uint32_t k);
 
+  // out[i] = bounded(range) for i in [0, count): exactly the numbers count
+  // successive bounded(range) calls would return (bootstrap indices).
+  // REQUIRES: range >= 1.
+  void bounded_fill(uint32_t* out, uint32_t range, uint32_t count);
+
   state_type state() const;
   void restore(const state_type& s);
 
@@ -141,6 +146,8 @@ class rng {
 
  private:
   void refill();
+  // Shared body of bounded_descending (step 1) and bounded_fill (step 0).
+  void bounded_run(uint32_t* out, uint32_t range0, uint32_t step, uint32_t count);
 
   std::array<std::array<uint64_t, 4>, lanes> lane_;
   alignas(64) std::array<uint64_t, block> buf_;

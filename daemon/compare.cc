@@ -1,12 +1,14 @@
 // compare.cc: `plumbline compare`. See compare.h.
 #include "daemon/compare.h"
 
+#include <charconv>
 #include <cmath>
 #include <cstdio>
 #include <iostream>
 #include <nlohmann/json.hpp>
 #include <sstream>
 
+#include "core/bootstrap.h"
 #include "core/permutation.h"
 #include "core/rng.h"
 #include "daemon/csv_input.h"
@@ -94,8 +96,7 @@ CLI::App* add_compare_command(CLI::App& app, compare_args& a) {
                   "mean-diff, median-diff, welch, ks, cvm, ad or energy; auto = ad for one "
                   "value per row, energy for rows of several values")
       ->check(CLI::IsMember(
-          {"auto", "mean-diff", "median-diff", "welch", "ks", "cvm", "ad", "energy"}))
-      ->capture_default_str();
+          {"auto", "mean-diff", "median-diff", "welch", "ks", "cvm", "ad", "energy"}));
   cmd->add_option("--resamples", a.resamples, "Monte Carlo resamples B")
       ->check(CLI::Range(uint64_t{1}, max_resamples))
       ->capture_default_str();
@@ -112,11 +113,103 @@ CLI::App* add_compare_command(CLI::App& app, compare_args& a) {
   cmd->add_option("--alpha", a.alpha, "significance level for the verdict line")
       ->check(CLI::Range(1e-12, 0.5))
       ->capture_default_str();
+  cmd->add_option("--interval", a.interval,
+                  "drift interval of mean-diff, median-diff, quantile-diff:Q (0<Q<1), sd-ratio "
+                  "or cpk (needs --spec-lower and/or --spec-upper)");
+  cmd->add_option("--method", a.method, "interval method: percentile, basic or bca")
+      ->check(CLI::IsMember({"percentile", "basic", "bca"}))
+      ->capture_default_str();
+  cmd->add_option("--level", a.level, "interval confidence level")
+      ->check(CLI::Range(0.5, 0.9999))
+      ->capture_default_str();
+  cmd->add_option("--block", a.block,
+                  "resampling blocks: auto (blocks only when the data are autocorrelated), none, "
+                  "or a block length")
+      ->capture_default_str();
+  cmd->add_option("--block-scheme", a.block_scheme,
+                  "bootstrap blocks: circular (fixed length) or stationary (random length)")
+      ->check(CLI::IsMember({"circular", "stationary"}))
+      ->capture_default_str();
+  cmd->add_option("--spec-lower", a.spec_lower, "lower specification limit (for cpk)");
+  cmd->add_option("--spec-upper", a.spec_upper, "upper specification limit (for cpk)");
   cmd->add_flag("--json", a.json, "print one JSON object instead of text");
   return cmd;
 }
 
+namespace {
+
+// Parses --interval and the options that go with it into `o`.
+expected<bool> interval_from_args(const compare_args& a, interval_options& o) {
+  const std::string& q = a.interval;
+  if (q == "mean-diff") {
+    o.quantity = drift_quantity::mean_diff;
+  } else if (q == "median-diff") {
+    o.quantity = drift_quantity::median_diff;
+  } else if (q == "sd-ratio") {
+    o.quantity = drift_quantity::sd_ratio;
+  } else if (q == "cpk") {
+    o.quantity = drift_quantity::cpk;
+    if (!a.spec_lower && !a.spec_upper)
+      return make_error("--interval cpk needs --spec-lower and/or --spec-upper");
+  } else if (q.rfind("quantile-diff:", 0) == 0) {
+    o.quantity = drift_quantity::quantile_diff;
+    double v;
+    if (!parse_number(q.substr(14), v) || !(v > 0 && v < 1))
+      return make_error("--interval quantile-diff:Q needs a Q strictly between 0 and 1, got \"" +
+                        q.substr(14) + "\"");
+    o.quantile = v;
+  } else {
+    return make_error("--interval: unknown quantity \"" + q +
+                      "\" (mean-diff, median-diff, quantile-diff:Q, sd-ratio, cpk)");
+  }
+  if ((a.spec_lower || a.spec_upper) && o.quantity != drift_quantity::cpk)
+    return make_error("--spec-lower/--spec-upper go with --interval cpk");
+  o.spec_lower = a.spec_lower;
+  o.spec_upper = a.spec_upper;
+  o.method = a.method == "percentile" ? interval_method::percentile
+             : a.method == "basic"    ? interval_method::basic
+                                      : interval_method::bca;
+  o.level = a.level;
+  o.resamples = std::min<uint64_t>(a.resamples, max_bootstrap_resamples);
+  o.scheme = a.block_scheme == "stationary" ? block_scheme::stationary : block_scheme::circular;
+  return true;
+}
+
+// --block: auto = 0, none = 1, or a length >= 1.
+expected<uint32_t> block_from_args(const std::string& b) {
+  if (b == "auto") return uint32_t{0};
+  if (b == "none") return uint32_t{1};
+  uint32_t v = 0;
+  const auto res = std::from_chars(b.data(), b.data() + b.size(), v);
+  if (res.ec != std::errc() || res.ptr != b.data() + b.size() || v == 0)
+    return make_error("--block takes auto, none or a block length of 1 or more, got \"" + b +
+                      "\"");
+  return v;
+}
+
+nlohmann::json dependence_json(const dependence_summary& d) {
+  return {{"lag1_autocorrelation", d.lag1},
+          {"lag1_standard_error", d.lag1_se},
+          {"dependent", d.dependent},
+          {"block_length_circular", d.block_circular},
+          {"block_length_stationary", d.block_stationary}};
+}
+
+}  // namespace
+
 int run_compare(const compare_args& a) {
+  const bool want_interval = !a.interval.empty();
+  const bool want_test = !want_interval || !a.test.empty();
+  interval_options iopt;
+  if (want_interval) {
+    if (auto ok = interval_from_args(a, iopt); !ok) return fail(ok.err().message);
+  } else if (a.spec_lower || a.spec_upper) {
+    return fail("--spec-lower/--spec-upper go with --interval cpk");
+  }
+  auto block = block_from_args(a.block);
+  if (!block) return fail(block.err().message);
+  iopt.block_length = block.value();
+
   auto ref = read_csv_sample(a.reference);
   if (!ref) return fail(ref.err().message);
   auto rec = read_csv_sample(a.recent);
@@ -124,14 +217,13 @@ int run_compare(const compare_args& a) {
   if (ref->width != rec->width)
     return fail(a.reference + " has rows of " + std::to_string(ref->width) + " values but " +
                 a.recent + " has rows of " + std::to_string(rec->width));
+  if (want_interval && ref->width > 1)
+    return fail("drift intervals take one value per row, but the files have rows of " +
+                std::to_string(ref->width) + " values");
 
-  test_kind test;
-  if (a.test == "auto") {
-    test = ref->width == 1 ? test_kind::ad : test_kind::energy;
-  } else {
-    test = *parse_test_name(a.test);  // validated by the option's check
-  }
-  if (ref->width > 1 && !is_multivariate(test))
+  test_kind test = ref->width == 1 ? test_kind::ad : test_kind::energy;
+  if (!a.test.empty() && a.test != "auto") test = *parse_test_name(a.test);
+  if (want_test && ref->width > 1 && !is_multivariate(test))
     return fail("test " + a.test + " takes one value per row, but the files have rows of " +
                 std::to_string(ref->width) + " values; use --test energy");
 
@@ -142,34 +234,78 @@ int run_compare(const compare_args& a) {
               : a.exact == "never" ? exact_mode::never
                                    : exact_mode::automatic;
   opt.stop_after = a.stop_after;
+  opt.block_length = block.value();
 
+  // One generator for the whole call: the test draws first, then the interval.
   rng gen(a.seed);
-  permutation_engine engine;
-  auto res = ref->width == 1 ? engine.run(ref->values, rec->values, opt, gen)
-                             : engine.run(as_matrix(ref.value()), as_matrix(rec.value()), opt, gen);
-  if (!res) return fail(res.err().message);
-  const permutation_result& r = res.value();
+  std::optional<permutation_result> test_result;
+  if (want_test) {
+    permutation_engine engine;
+    auto res = ref->width == 1
+                   ? engine.run(ref->values, rec->values, opt, gen)
+                   : engine.run(as_matrix(ref.value()), as_matrix(rec.value()), opt, gen);
+    if (!res) return fail(res.err().message);
+    test_result = res.value();
+  }
+  std::optional<interval_result> interval;
+  if (want_interval) {
+    bootstrap_engine engine;
+    auto res = engine.run(ref->values, rec->values, iopt, gen);
+    if (!res) return fail(res.err().message);
+    interval = res.value();
+  }
 
   if (a.json) {
-    nlohmann::json t;
-    t["name"] = std::string(test_name(test));
-    t["statistic"] = r.statistic;
-    if (test == test_kind::ad && !r.constant_data && r.n_reference + r.n_recent > 3)
-      t["statistic_standardized"] = ad_standardized(r.statistic, r.n_reference, r.n_recent);
-    t["p_value"] = r.p_value;
-    t["p_value_low"] = r.p_low;
-    t["p_value_high"] = r.p_high;
-    t["p_value_level"] = opt.ci_level;
-    t["resamples"] = r.resamples;
-    t["exceedances"] = r.exceedances;
-    t["exact"] = r.exact;
-    t["stopped_early"] = r.stopped_early;
-    t["constant_data"] = r.constant_data;
-    t["seed"] = a.seed;
-    t["n_reference"] = r.n_reference;
-    t["n_recent"] = r.n_recent;
     nlohmann::json out;
-    out["test"] = t;
+    if (test_result) {
+      const permutation_result& r = *test_result;
+      nlohmann::json t;
+      t["name"] = std::string(test_name(test));
+      t["statistic"] = r.statistic;
+      if (test == test_kind::ad && !r.constant_data && r.n_reference + r.n_recent > 3)
+        t["statistic_standardized"] = ad_standardized(r.statistic, r.n_reference, r.n_recent);
+      t["p_value"] = r.p_value;
+      t["p_value_low"] = r.p_low;
+      t["p_value_high"] = r.p_high;
+      t["p_value_level"] = opt.ci_level;
+      t["resamples"] = r.resamples;
+      t["exceedances"] = r.exceedances;
+      t["exact"] = r.exact;
+      t["stopped_early"] = r.stopped_early;
+      t["constant_data"] = r.constant_data;
+      t["block_length"] = r.block_length;
+      t["seed"] = a.seed;
+      t["n_reference"] = r.n_reference;
+      t["n_recent"] = r.n_recent;
+      out["test"] = t;
+    }
+    if (interval) {
+      const interval_result& r = *interval;
+      nlohmann::json j;
+      j["quantity"] = std::string(quantity_name(r.quantity));
+      if (r.quantity == drift_quantity::quantile_diff) j["quantile"] = r.quantile;
+      j["method"] = std::string(method_name(r.method));
+      j["method_used"] = std::string(method_name(r.method_used));
+      j["level"] = r.level;
+      j["estimate"] = r.estimate;
+      j["lower"] = r.lower;
+      j["upper"] = r.upper;
+      j["reference_value"] = r.reference_value;
+      j["recent_value"] = r.recent_value;
+      j["resamples"] = r.resamples;
+      j["block_length"] = r.block_length;
+      j["block_scheme"] = r.block_length > 1 ? std::string(scheme_name(r.scheme)) : "none";
+      j["degenerate"] = r.degenerate;
+      if (!r.note.empty()) j["note"] = r.note;
+      if (r.method_used == interval_method::bca) {
+        j["bias_correction"] = r.bias_correction;
+        j["acceleration"] = r.acceleration;
+      }
+      j["dependence"] = {{"reference", dependence_json(r.reference_dependence)},
+                         {"recent", dependence_json(r.recent_dependence)}};
+      j["seed"] = a.seed;
+      out["interval"] = j;
+    }
     out["reference"] = sample_json(ref.value());
     out["recent"] = sample_json(rec.value());
     std::cout << out.dump(2) << "\n";
@@ -190,35 +326,60 @@ int run_compare(const compare_args& a) {
   };
   sample_line("reference  ", ref.value());
   sample_line("recent     ", rec.value());
-  o << "test       " << test_name(test) << ": " << describe(test) << "\n";
-  if (r.constant_data) {
-    o << "result     every value in both samples is the same (" << fmt(ref->values[0])
-      << "): nothing to compare, p = 1. A stuck sensor or a resolution too coarse?\n";
-    std::cout << o.str();
-    return 0;
+  if (test_result) {
+    const permutation_result& r = *test_result;
+    o << "test       " << test_name(test) << ": " << describe(test);
+    if (r.block_length > 1) o << ", permuting blocks of " << r.block_length;
+    o << "\n";
+    if (r.constant_data) {
+      o << "result     every value in both samples is the same (" << fmt(ref->values[0])
+        << "): nothing to compare, p = 1. A stuck sensor or a resolution too coarse?\n";
+    } else {
+      o << "statistic  " << fmt(r.statistic, 8);
+      if (test == test_kind::ad && r.n_reference + r.n_recent > 3)
+        o << " (standardized " << fmt(ad_standardized(r.statistic, r.n_reference, r.n_recent))
+          << ")";
+      o << "\n";
+      o << "p-value    " << fmt(r.p_value, 4);
+      if (r.exact) {
+        o << " exact, all " << r.resamples << " splits enumerated\n";
+      } else {
+        o << " Monte Carlo, " << r.exceedances << " of " << r.resamples
+          << " resamples at least as extreme";
+        if (r.stopped_early) o << " (stopped early after " << a.stop_after << ")";
+        o << "; " << fmt(100 * opt.ci_level, 3) << "% interval [" << fmt(r.p_low, 4) << ", "
+          << fmt(r.p_high, 4) << "], seed " << a.seed << "\n";
+      }
+      o << "reading    ";
+      if (r.p_value < a.alpha)
+        o << "p < " << fmt(a.alpha) << ": the recent sample is unlikely to come from the "
+          << "reference distribution.\n";
+      else
+        o << "p >= " << fmt(a.alpha) << ": no evidence that the recent sample differs from the "
+          << "reference.\n";
+    }
   }
-  o << "statistic  " << fmt(r.statistic, 8);
-  if (test == test_kind::ad && r.n_reference + r.n_recent > 3)
-    o << " (standardized " << fmt(ad_standardized(r.statistic, r.n_reference, r.n_recent))
-      << ")";
-  o << "\n";
-  o << "p-value    " << fmt(r.p_value, 4);
-  if (r.exact) {
-    o << " exact, all " << r.resamples << " splits enumerated\n";
-  } else {
-    o << " Monte Carlo, " << r.exceedances << " of " << r.resamples
-      << " resamples at least as extreme";
-    if (r.stopped_early) o << " (stopped early after " << a.stop_after << ")";
-    o << "; " << fmt(100 * opt.ci_level, 3) << "% interval [" << fmt(r.p_low, 4) << ", "
-      << fmt(r.p_high, 4) << "], seed " << a.seed << "\n";
+  if (interval) {
+    const interval_result& r = *interval;
+    std::string what(quantity_name(r.quantity));
+    if (r.quantity == drift_quantity::quantile_diff) what += " at q = " + fmt(r.quantile);
+    o << "drift      " << what << " = " << fmt(r.estimate, 6) << ", " << fmt(100 * r.level, 3)
+      << "% " << method_name(r.method_used) << " interval [" << fmt(r.lower, 6) << ", "
+      << fmt(r.upper, 6) << "]\n";
+    o << "           reference " << fmt(r.reference_value) << ", recent " << fmt(r.recent_value)
+      << "; " << r.resamples << " resamples, ";
+    if (r.block_length > 1)
+      o << scheme_name(r.scheme) << " blocks of " << r.block_length;
+    else
+      o << "independent resampling";
+    o << "\n";
+    o << "dependence lag-1 autocorrelation reference " << fmt(r.reference_dependence.lag1, 3)
+      << ", recent " << fmt(r.recent_dependence.lag1, 3) << " (standard errors "
+      << fmt(r.reference_dependence.lag1_se, 2) << ", " << fmt(r.recent_dependence.lag1_se, 2)
+      << ")\n";
+    if (r.degenerate) o << "note       degenerate: " << r.note << "\n";
+    else if (!r.note.empty()) o << "note       " << r.note << "\n";
   }
-  o << "reading    ";
-  if (r.p_value < a.alpha)
-    o << "p < " << fmt(a.alpha) << ": the recent sample is unlikely to come from the "
-      << "reference distribution.\n";
-  else
-    o << "p >= " << fmt(a.alpha) << ": no evidence that the recent sample differs from the "
-      << "reference.\n";
   o << "           Advisory only: not a substitute for site quality procedures or an "
        "engineer's judgement.\n";
   std::cout << o.str();
