@@ -412,6 +412,14 @@ expected<interval_result> bootstrap_engine::run(std::span<const double> referenc
                                     {yb.mean, yb.sd, yb.quantile});
   }
   r.resamples = opt.resamples;
+  {
+    double mean = 0, ss = 0;
+    for (double v : replicates_) mean += v;
+    mean /= static_cast<double>(opt.resamples);
+    for (double v : replicates_) ss += (v - mean) * (v - mean);
+    r.standard_error =
+        opt.resamples > 1 ? std::sqrt(ss / static_cast<double>(opt.resamples - 1)) : 0.0;
+  }
   std::sort(replicates_.begin(), replicates_.end());
   if (replicates_.front() == replicates_.back())
     return degenerate("every resample gives the same value (a constant window?)");

@@ -101,6 +101,7 @@ struct interval_result {
   double estimate = 0;
   double lower = 0;
   double upper = 0;
+  double standard_error = 0;   // standard deviation of the B replicates
   double reference_value = 0;  // the window's part: mean, quantile, sd or Cpk
   double recent_value = 0;
   uint64_t resamples = 0;

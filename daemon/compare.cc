@@ -290,6 +290,7 @@ int run_compare(const compare_args& a) {
       j["estimate"] = r.estimate;
       j["lower"] = r.lower;
       j["upper"] = r.upper;
+      j["standard_error"] = r.standard_error;
       j["reference_value"] = r.reference_value;
       j["recent_value"] = r.recent_value;
       j["resamples"] = r.resamples;
