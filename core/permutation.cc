@@ -17,6 +17,12 @@
 // * Per-resample work: O(k) for sum statistics; O(k) marks plus one O(N)
 //   scan of the sorted positions for rank statistics; O(k^2) lookups in a
 //   precomputed distance matrix for energy.
+// * Decimal data. Measurements are decimal (125.4 g, 125.6 g), their binary
+//   doubles are not, so splits whose sums are equal for the decimal values
+//   differ by rounding of the order of eps times the values' magnitude,
+//   which can be far more than 1e-14 |T| when T is small. mean-diff and welch
+//   therefore get an absolute allowance derived from that bound (see run()),
+//   and a group variance within rounding of 0 counts as exactly 0.
 // * Exact comparisons. ks and cvm are compared on integer-valued forms (the
 //   largest |c_d k_o - c_o k_d| over tie groups, and U), so ties between
 //   splits are exact. For the other statistics a T* within a relative 1e-14
@@ -220,16 +226,22 @@ struct sum_kernel {
   double total, total_sq;
   bool drawn_is_recent;
   double slack = 0;
+  double var_floor = 0;  // a variance at or below this is rounding: exactly 0
 
+  double variance(double s, double q, double count) const {
+    const double v = (q - s * s / count) / (count - 1);
+    return v <= var_floor ? 0.0 : v;
+  }
+  double standard_error(double s, double q) const {
+    const double kd = k, ko = n_total - k;
+    return std::sqrt(variance(s, q, kd) / kd + variance(total - s, total_sq - q, ko) / ko);
+  }
   double finish(double s, double q) const {
     const double kd = k, ko = n_total - k;
     const double mean_d = s / kd, mean_o = (total - s) / ko;
     double diff = drawn_is_recent ? mean_d - mean_o : mean_o - mean_d;
     if (kind == test_kind::mean_diff) return std::fabs(diff);
-    const double var_d = std::max(0.0, (q - s * s / kd) / (kd - 1));
-    const double so = total - s;
-    const double var_o = std::max(0.0, (total_sq - q - so * so / ko) / (ko - 1));
-    const double se = std::sqrt(var_d / kd + var_o / ko);
+    const double se = standard_error(s, q);
     if (se == 0) return diff == 0 ? 0.0 : DBL_MAX;
     return std::fabs(diff / se);
   }
@@ -565,6 +577,36 @@ expected<permutation_result> permutation_engine::run(std::span<const double> ref
     scratch_.resize(k);
     sum_kernel kern{options.test, values_.data(), draws_.data(), pooled_.data(),
                     scratch_.data(), nt, k, total, total_sq, drawn_is_recent};
+    // Rounding allowances (see the design note). Each centered value carries
+    // an error of at most eps X / 2, X the largest |value| before centering,
+    // so a mean difference is off by at most eps X, and two splits that are
+    // equal for the decimal data by 2 eps X; a variance is off by about
+    // 2 eps X V, V the largest |centered value|.
+    double big_x = 0, big_v = 0;
+    for (double v : reference) big_x = std::max(big_x, std::fabs(v));
+    for (double v : recent) big_x = std::max(big_x, std::fabs(v));
+    for (double v : pooled_) big_v = std::max(big_v, std::fabs(v));
+    const double eps = DBL_EPSILON;
+    kern.var_floor = 8 * eps * big_x * big_v;
+    const double mean_slack = 8 * eps * big_x;
+    if (options.test == test_kind::mean_diff) {
+      kern.slack = mean_slack;
+    } else {
+      // |T| = |d| / se: the error is about delta_d / se + |T| delta_se / se.
+      subset_.resize(k);
+      std::iota(subset_.begin(), subset_.end(), 0u);
+      double s0 = 0, q0 = 0;
+      for (uint32_t i = 0; i < k; ++i) {
+        s0 += pooled_[i];
+        q0 += pooled_[i] * pooled_[i];
+      }
+      const double se = kern.standard_error(s0, q0);
+      if (se > 0) {
+        const double t_obs = kern.exact(subset_.data(), k);
+        const double dvar = 2 * eps * big_x * big_v * (1.0 / k + 1.0 / (nt - k));
+        kern.slack = 4 * (mean_slack / se + (t_obs < DBL_MAX ? t_obs : 0) * dvar / (se * se));
+      }
+    }
     t = run_kernel(kern, [](uint32_t i) { return i; });
   } else {
     // Tie groups of the sorted pooled values.

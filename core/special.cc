@@ -84,8 +84,8 @@ double polynomial(const std::array<double, n>& c, double t) {
 }
 
 // log Gamma(z) - [(z - 1/2) log z - z + log sqrt(2 pi)], the Stirling series
-// (Abramowitz & Stegun 6.1.41; equation number from memory) for z >= 10, where the first omitted term is
-// below 3e-17.
+// (Abramowitz & Stegun 6.1.41; equation number from memory) for z >= 10, where the first omitted
+// term is below 3e-17.
 double stirling_correction(double z) {
   // B_2k / (2k (2k - 1)) for k = 1..8.
   static constexpr std::array<double, 8> c = {1.0 / 12,    -1.0 / 360,      1.0 / 1260,
@@ -177,7 +177,7 @@ double beta_fraction(double a, double b, double x, double lambda) {
   constexpr double tiny = 1e-300;
   constexpr int max_terms = 1000000;
   double f = a * (lambda + 1.0) / (a + 1.0);
-  if (f < tiny) f = tiny;
+  if (f == 0.0) f = tiny;
   double c = f;
   double d = 0.0;
   for (int i = 1; i <= max_terms; ++i) {
@@ -212,15 +212,17 @@ beta_values evaluate_beta(double a, double b, double x, double y) {
   beta_values v{};
   const double lambda = beta_lambda(a, b, x, y);
   v.log_pre = log_prefactor(a, b, x, y, lambda);
+  // Rounding can push a value of nearly 1 just above it; log I <= 0 keeps
+  // both I and 1 - I inside [0, 1].
   if (x < (a + 1.0) / (a + b + 2.0)) {
-    v.log_lower = v.log_pre - std::log(beta_fraction(a, b, x, lambda));
+    v.log_lower = std::min(0.0, v.log_pre - std::log(beta_fraction(a, b, x, lambda)));
     v.lower = std::exp(v.log_lower);
-    v.upper = -std::expm1(v.log_lower);
+    v.upper = std::max(0.0, -std::expm1(v.log_lower));  // never -0
     v.log_upper = std::log1p(-v.lower);
   } else {
-    v.log_upper = v.log_pre - std::log(beta_fraction(b, a, y, -lambda));
+    v.log_upper = std::min(0.0, v.log_pre - std::log(beta_fraction(b, a, y, -lambda)));
     v.upper = std::exp(v.log_upper);
-    v.lower = -std::expm1(v.log_upper);
+    v.lower = std::max(0.0, -std::expm1(v.log_upper));
     v.log_lower = std::log1p(-v.upper);
   }
   return v;
@@ -257,8 +259,8 @@ double bisect(double lo, double hi) {
 // Starting point for beta_quantile: Numerical Recipes (3rd ed.) 6.4, invbetai.
 double beta_quantile_start(double p, double q, double a, double b) {
   if (a >= 1.0 && b >= 1.0) {
-    // Abramowitz & Stegun 26.5.22 with the normal quantile of p.
-    const double z = -normal_quantile(std::min(p, q)) * (p < q ? -1.0 : 1.0);
+    // Abramowitz & Stegun 26.5.22, with z the upper p point of the normal.
+    const double z = p < q ? -normal_quantile(p) : normal_quantile(q);
     const double al = (z * z - 3.0) / 6.0;
     const double h = 2.0 / (1.0 / (2.0 * a - 1.0) + 1.0 / (2.0 * b - 1.0));
     const double w = z * std::sqrt(al + h) / h - (1.0 / (2.0 * b - 1.0) - 1.0 / (2.0 * a - 1.0)) *

@@ -39,6 +39,9 @@ double mean_of(std::span<const double> v) {
 }
 
 double variance_of(std::span<const double> v, double mean) {
+  // A constant sample has variance exactly 0, although its computed mean
+  // may differ from its values by rounding.
+  if (std::all_of(v.begin(), v.end(), [&](double x) { return x == v[0]; })) return 0;
   neumaier_sum s;
   for (double x : v) s.add((x - mean) * (x - mean));
   return s.value() / static_cast<double>(v.size() - 1);

@@ -14,9 +14,10 @@
 // values, the terms subtracted are bit for bit the terms that were added. Then
 //   mean     = K + S1 / n
 //   variance = max(0, (S2 - S1^2 / n) / (n - 1)).
-// The square is formed in a separate, never-inlined function so that a
-// compiler that fuses multiply-add (FMA contraction) cannot round it
-// differently on the add and the subtract path.
+// The project builds with -ffp-contract=off; in addition the square is
+// formed in a separate, never-inlined function, so that even a build that
+// fuses multiply-add (FMA contraction) cannot round it differently on the
+// add and the subtract path.
 //
 // Where the error comes from, with rho = |xbar - K| / s (the anchor's offset
 // in standard deviations) and A = n rho^2 / (n - 1), so that
@@ -47,14 +48,17 @@
 //      first pick, would allow A ~ 1e6 and only about 10 digits.)
 //   3. After every push, if the mass M2 (the sum of all q added or subtracted
 //      since the last rebuild; M2 = S2 right after one) exceeds 2^20 S2, the
-//      sums are rebuilt. This is the case of a large outlier leaving the
-//      window: while it was in, the compensation term of S2 held its rounding
-//      error, of order u times its square, and the small squares added
-//      meanwhile were kept only to that absolute accuracy; once it leaves,
-//      that absolute error could be large relative to the small S2 that
-//      remains. With M2 <= 2^20 S2 and m <= 3 capacity, the O(m u^2) M2 term
-//      is below 4e-26 capacity S2: negligible for any window that fits in
-//      memory. The same bound covers S1 (Cauchy–Schwarz: its mass is at most
+//      sums are rebuilt. This is the case of large outliers leaving the
+//      window: while they were in, the compensation term of S2 held the
+//      rounding errors of adding their squares to each other, of order u
+//      times those squares, and the small squares added meanwhile were
+//      accumulated next to it only to that absolute accuracy; once they
+//      leave, that absolute error can be large relative to the small S2 that
+//      remains (in the unit tests, bursts of readings 1e15 sd out leave a
+//      relative error of 3e-3 in the sd without this rule). With
+//      M2 <= 2^20 S2 and m <= 3 capacity, the O(m u^2) M2 term is about
+//      4e-26 capacity S2: negligible for any window that fits in memory.
+//      The same bound covers S1 (Cauchy–Schwarz: its mass is at most
 //      sqrt(m M2)).
 // The mean: fl(S1 / n) and K + S1 / n round once each, and the errors of (a)
 // and (c) in S1 are at most about 4u (|S1 / n| + s); with rho <= 16 the mean
@@ -106,9 +110,13 @@ namespace {
 // The rounded square, in a function of its own: a caller cannot fuse the
 // multiplication into a following addition, so add and subtract see the
 // same rounded term.
-[[gnu::noinline]] double rounded_square(double d) { return d * d; }
+[[gnu::noinline]] double rounded_square(double d) {
+  return d * d;
+}
 
-double abs_value(double x) { return x < 0 ? -x : x; }
+double abs_value(double x) {
+  return x < 0 ? -x : x;
+}
 
 }  // namespace
 
@@ -171,7 +179,8 @@ void rebuild_moments(running_moments& m, std::size_t n, At at) {
     return;
   }
   compensated_sum total;
-  for (std::size_t i = 0; i < n; ++i) total.add(at(i));
+  for (std::size_t i = 0; i < n; ++i)
+    total.add(at(i));
   const double center = total.value() / static_cast<double>(n);
   double anchor = at(0);
   double best = abs_value(anchor - center);
@@ -245,7 +254,8 @@ void sample_window::set_capacity(std::size_t new_capacity) {
   if (new_capacity == buf_.size()) return;
   const std::size_t keep = std::min(size_, new_capacity);
   std::vector<double> next(new_capacity);
-  for (std::size_t i = 0; i < keep; ++i) next[i] = (*this)[size_ - keep + i];
+  for (std::size_t i = 0; i < keep; ++i)
+    next[i] = (*this)[size_ - keep + i];
   buf_.swap(next);
   head_ = 0;
   size_ = keep;
@@ -266,9 +276,15 @@ void sample_window::copy_newest_to(std::span<double> out) const {
   std::copy_n(buf_.data(), k - run, out.data() + run);
 }
 
-double sample_window::mean() const { return moments_.mean(size_); }
-double sample_window::variance() const { return moments_.variance(size_); }
-double sample_window::stddev() const { return std::sqrt(variance()); }
+double sample_window::mean() const {
+  return moments_.mean(size_);
+}
+double sample_window::variance() const {
+  return moments_.variance(size_);
+}
+double sample_window::stddev() const {
+  return std::sqrt(variance());
+}
 
 // ---------------------------------------------------------------------------
 // row_window
@@ -298,7 +314,8 @@ void row_window::push(std::span<const double> row) {
   double* dst;
   if (size_ == capacity_) {
     dst = buf_.data() + head_ * dim_;
-    for (std::size_t j = 0; j < dim_; ++j) moments_[j].remove(dst[j]);
+    for (std::size_t j = 0; j < dim_; ++j)
+      moments_[j].remove(dst[j]);
     head_ = head_ + 1 == capacity_ ? 0 : head_ + 1;
     ++evictions_;
   } else {
@@ -306,7 +323,8 @@ void row_window::push(std::span<const double> row) {
     ++size_;
   }
   std::copy_n(row.data(), dim_, dst);
-  for (std::size_t j = 0; j < dim_; ++j) moments_[j].add(row[j]);
+  for (std::size_t j = 0; j < dim_; ++j)
+    moments_[j].add(row[j]);
   if (evictions_ >= capacity_) {
     rebuild();
     return;
@@ -323,7 +341,8 @@ void row_window::rebuild_column(std::size_t column) {
 }
 
 void row_window::rebuild() {
-  for (std::size_t j = 0; j < dim_; ++j) rebuild_column(j);
+  for (std::size_t j = 0; j < dim_; ++j)
+    rebuild_column(j);
   evictions_ = 0;
 }
 
@@ -332,7 +351,8 @@ void row_window::clear() {
   size_ = 0;
   pushes_ = 0;
   evictions_ = 0;
-  for (auto& m : moments_) m = {};
+  for (auto& m : moments_)
+    m = {};
 }
 
 void row_window::set_capacity(std::size_t new_capacity) {
@@ -366,17 +386,21 @@ void row_window::copy_to(Eigen::MatrixXd& out) const {
 
 Eigen::VectorXd row_window::mean() const {
   Eigen::VectorXd out(static_cast<Eigen::Index>(dim_));
-  for (std::size_t j = 0; j < dim_; ++j) out[static_cast<Eigen::Index>(j)] = mean(j);
+  for (std::size_t j = 0; j < dim_; ++j)
+    out[static_cast<Eigen::Index>(j)] = mean(j);
   return out;
 }
 
 Eigen::VectorXd row_window::variance() const {
   Eigen::VectorXd out(static_cast<Eigen::Index>(dim_));
-  for (std::size_t j = 0; j < dim_; ++j) out[static_cast<Eigen::Index>(j)] = variance(j);
+  for (std::size_t j = 0; j < dim_; ++j)
+    out[static_cast<Eigen::Index>(j)] = variance(j);
   return out;
 }
 
-double row_window::mean(std::size_t column) const { return moments_[column].mean(size_); }
+double row_window::mean(std::size_t column) const {
+  return moments_[column].mean(size_);
+}
 double row_window::variance(std::size_t column) const {
   return moments_[column].variance(size_);
 }

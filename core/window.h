@@ -21,18 +21,17 @@
 //     O(size) and come at most once per `capacity` pushes for ordinary
 //     streams, so push is O(1) amortized.
 //
-// Guarantees (for the exact values of the stored binary64 numbers, in
-// IEEE binary64 arithmetic with round-to-nearest and no excess precision;
-// -ffast-math voids them): the variance is within a relative 5.2e-13
-// (2.6e-13 once n >= 100) and so the standard deviation within 2.6e-13
-// (1.3e-13), i.e. at least 12 significant digits; the mean is within about
-// 1.1e-16 * (|mean| + 70 * sd). The variance is never negative, and a window
-// whose values are all equal has variance exactly 0 and mean exactly that
-// value. Values must be finite, and their spread such that its square
-// neither overflows nor underflows (between about 1e-150 and 1e150); a NaN
-// or infinity makes the
-// statistics non-finite until it has left the window and `capacity` more
-// values have been pushed.
+// Guarantees, for the exact values of the stored binary64 numbers, in IEEE
+// binary64 arithmetic with round-to-nearest and no excess precision
+// (-ffast-math voids them), to first order in the unit roundoff: the variance
+// is within a relative 5.2e-13 (2.6e-13 once n >= 100) and so the standard
+// deviation within 2.6e-13 (1.3e-13), i.e. at least 12 significant digits;
+// the mean is within about 1.1e-16 * (|mean| + 70 * sd). The variance is
+// never negative, and a window whose values are all equal has variance
+// exactly 0 and mean exactly that value. Values must be finite, and their
+// spread such that its square neither overflows nor underflows (between about
+// 1e-150 and 1e150). A NaN or infinity makes the statistics non-finite until
+// it has left the window and at most `capacity` more values have been pushed.
 //
 // Storage is allocated once, at construction (and again only by
 // set_capacity); push never allocates.

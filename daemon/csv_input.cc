@@ -42,7 +42,10 @@ std::string quoted(std::string_view cell) {
 
 bool parse_number(std::string_view cell, double& out) {
   cell = trim(cell);
-  if (!cell.empty() && cell.front() == '+') cell.remove_prefix(1);
+  if (!cell.empty() && cell.front() == '+') {
+    cell.remove_prefix(1);
+    if (!cell.empty() && (cell.front() == '+' || cell.front() == '-')) return false;
+  }
   if (cell.empty()) return false;
   const char* end = cell.data() + cell.size();
   const auto res = std::from_chars(cell.data(), end, out, std::chars_format::general);
