@@ -1,0 +1,207 @@
+#!/usr/bin/env bash
+# deploy/setup.sh: install, build, test and demonstrate plumbline on Debian 12.
+#
+# Usage: bash deploy/setup.sh deps|build|demo|test|sanitize
+#
+#   deps      install the Debian packages the build and the tests need
+#             (skipped when all of them are installed already)
+#   build     deps, then a RelWithDebInfo build in build/
+#   demo      build, then compare the demo data in simulator/examples/
+#   test      build, then run every test suite with ctest
+#   sanitize  deps, then an AddressSanitizer + UndefinedBehaviorSanitizer
+#             build in build-asan/ and the unit suite under it
+#
+# Runs as root on a fresh Debian 12 machine, asks nothing, and can be run
+# again at any time: each step only does what is still missing. Works from
+# any current directory.
+set -euo pipefail
+
+repo_root="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
+cd "$repo_root"
+
+packages=(
+  build-essential cmake g++
+  libboost-dev libeigen3-dev prometheus-cpp-dev libtomlplusplus-dev catch2
+  libssl-dev libcli11-dev nlohmann-json3-dev
+  python3-scipy python3-numpy
+  prometheus
+  clang-14 libclang-rt-14-dev
+)
+
+examples=simulator/examples
+
+say() { printf '==> %s\n' "$*"; }
+
+# Prints a command, then runs it.
+run() {
+  printf '+ %s\n' "$*"
+  "$@"
+}
+
+usage() {
+  cat >&2 <<'EOF'
+usage: bash deploy/setup.sh COMMAND
+
+commands:
+  deps      install the Debian 12 packages plumbline needs (quick when present)
+  build     deps, then build in build/ (RelWithDebInfo)
+  demo      build, then run `plumbline compare` on the demo data
+  test      build, then run all test suites (ctest)
+  sanitize  deps, then build in build-asan/ with ASan + UBSan and run the unit suite
+EOF
+}
+
+ncpu() { nproc 2>/dev/null || echo 2; }
+
+# The packages of $packages that dpkg does not list as installed.
+missing_packages() {
+  local p status
+  for p in "${packages[@]}"; do
+    status="$(dpkg-query -W -f='${db:Status-Abbrev}' "$p" 2>/dev/null || true)"
+    if [[ "$status" != ii* ]]; then
+      printf '%s\n' "$p"
+    fi
+  done
+}
+
+# True when apt's package lists exist and were refreshed in the last day.
+apt_lists_fresh() {
+  [[ -n "$(find /var/lib/apt/lists -maxdepth 1 -name '*_Packages*' -mmin -1440 -print -quit \
+    2>/dev/null)" ]]
+}
+
+apt_update() {
+  local attempt
+  for attempt in 1 2 3; do
+    if run apt-get update -o DPkg::Lock::Timeout=600; then
+      return 0
+    fi
+    say "apt-get update failed (attempt $attempt of 3); retrying in 10 s"
+    sleep 10
+  done
+  return 1
+}
+
+apt_install() {
+  run env DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends \
+    -o DPkg::Lock::Timeout=600 "$@"
+}
+
+cmd_deps() {
+  if ! command -v dpkg-query >/dev/null 2>&1; then
+    echo "setup.sh: dpkg-query not found; this script is for Debian 12" >&2
+    exit 1
+  fi
+  local missing
+  mapfile -t missing < <(missing_packages)
+  if ((${#missing[@]} == 0)); then
+    say "deps: all ${#packages[@]} packages are installed; skipping apt"
+    return 0
+  fi
+  say "deps: missing packages: ${missing[*]}"
+  if ((EUID != 0)); then
+    echo "setup.sh: installing packages needs root; run this as root" >&2
+    exit 1
+  fi
+  if apt_lists_fresh; then
+    say "deps: apt package lists are less than a day old; not updating them"
+  else
+    say "deps: apt package lists are missing or older than a day; updating"
+    apt_update
+  fi
+  # Install the whole list: apt leaves installed packages alone, and this
+  # keeps the installed set the same whatever was present before.
+  if ! apt_install "${packages[@]}"; then
+    say "deps: install failed; refreshing the package lists and trying once more"
+    apt_update
+    apt_install "${packages[@]}"
+  fi
+  mapfile -t missing < <(missing_packages)
+  if ((${#missing[@]} != 0)); then
+    echo "setup.sh: still not installed after apt-get: ${missing[*]}" >&2
+    exit 1
+  fi
+  say "deps: done"
+}
+
+cmd_build() {
+  cmd_deps
+  say "build: configuring build/ (RelWithDebInfo)"
+  run cmake -S . -B build -DCMAKE_BUILD_TYPE=RelWithDebInfo
+  say "build: compiling with $(ncpu) jobs"
+  run cmake --build build -j"$(ncpu)"
+  say "build: done; the binary is build/daemon/plumbline"
+}
+
+cmd_demo() {
+  cmd_build
+  local bin=./build/daemon/plumbline
+  echo
+  say "demo: Larkspur Dairy (an invented plant; the data is invented for demos)."
+  say "demo: Cup line B, filler head 4, fill weight in grams. Reference: 400 fills"
+  say "demo: from an in-control shift. Recent: 150 fills after the nozzle was reseated."
+  echo
+  say "Is the recent fill-weight distribution the same as the reference one?" \
+    "Anderson-Darling permutation test; a small p-value says it has changed."
+  run "$bin" compare --reference "$examples/fill_weight_reference.csv" \
+    --recent "$examples/fill_weight_recent.csv" --test ad
+  echo
+  say "The same comparison as JSON, the form a script or dashboard would read."
+  run "$bin" compare --reference "$examples/fill_weight_reference.csv" \
+    --recent "$examples/fill_weight_recent.csv" --test ad --json
+  echo
+  say "Bottle line D, capper station 3: cap torque (N m) and label offset (mm) together." \
+    "Energy-distance permutation test: has the joint distribution moved since the label reel change?"
+  run "$bin" compare --reference "$examples/capper_reference.csv" \
+    --recent "$examples/capper_recent.csv" --test energy
+  echo
+  say "demo: done. Results are advisory: they do not replace site quality procedures."
+}
+
+cmd_test() {
+  cmd_build
+  say "test: running every suite (unit, reference, calibration, cli)"
+  run ctest --test-dir build --output-on-failure --no-tests=error -j2
+  say "test: done"
+}
+
+cmd_sanitize() {
+  cmd_deps
+  say "sanitize: configuring build-asan/ with AddressSanitizer + UndefinedBehaviorSanitizer"
+  run cmake -S . -B build-asan -DCMAKE_BUILD_TYPE=RelWithDebInfo \
+    -DPLUMBLINE_SANITIZE=address,undefined -DPLUMBLINE_BUILD_BENCH=OFF
+  # Only the unit suite runs under the sanitizers, so only it (and the
+  # plumbline binary it depends on) is compiled here.
+  say "sanitize: compiling the unit suite with $(ncpu) jobs"
+  run cmake --build build-asan -j"$(ncpu)" --target plumbline_unit_tests
+  say "sanitize: running the unit suite under the sanitizers"
+  run env ASAN_OPTIONS="${ASAN_OPTIONS:-detect_leaks=1}" \
+    UBSAN_OPTIONS="${UBSAN_OPTIONS:-print_stacktrace=1:halt_on_error=1}" \
+    ctest --test-dir build-asan -L unit --output-on-failure --no-tests=error -j2
+  say "sanitize: done"
+}
+
+main() {
+  if (($# != 1)); then
+    usage
+    exit 2
+  fi
+  case "$1" in
+    deps) cmd_deps ;;
+    build) cmd_build ;;
+    demo) cmd_demo ;;
+    test) cmd_test ;;
+    sanitize) cmd_sanitize ;;
+    -h | --help | help)
+      usage
+      exit 0
+      ;;
+    *)
+      echo "setup.sh: unknown command '$1'" >&2
+      usage
+      exit 2
+      ;;
+  esac
+}
+
+main "$@"
