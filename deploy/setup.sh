@@ -146,9 +146,14 @@ cmd_demo() {
   run "$bin" compare --reference "$examples/fill_weight_reference.csv" \
     --recent "$examples/fill_weight_recent.csv" --test ad
   echo
-  say "The same comparison as JSON, the form a script or dashboard would read."
+  say "How far has the fill weight moved, in grams? A 95 % BCa bootstrap interval for" \
+    "the difference of means, to hold against the line's tolerance."
   run "$bin" compare --reference "$examples/fill_weight_reference.csv" \
-    --recent "$examples/fill_weight_recent.csv" --test ad --json
+    --recent "$examples/fill_weight_recent.csv" --interval mean-diff
+  echo
+  say "Test and interval together as JSON, the form a script or dashboard would read."
+  run "$bin" compare --reference "$examples/fill_weight_reference.csv" \
+    --recent "$examples/fill_weight_recent.csv" --test ad --interval mean-diff --json
   echo
   say "Bottle line D, capper station 3: cap torque (N m) and label offset (mm) together." \
     "Energy-distance permutation test: has the joint distribution moved since the label reel change?"
