@@ -104,12 +104,15 @@ void rng::bounded_run(uint32_t* out, uint32_t n, uint32_t step, uint32_t k) {
 
 rng::rng(uint64_t seed) {
   splitmix64 sm(seed);
-  for (auto& l : lane_) {
+  std::array<std::array<uint64_t, 4>, lanes> lane;
+  for (auto& l : lane) {
     for (auto& w : l) w = sm.next();
     // xoshiro's state must not be all zero; splitmix64 outputs four zeros in a
     // row for no seed, but guard anyway.
     if ((l[0] | l[1] | l[2] | l[3]) == 0) l[0] = 1;
   }
+  for (std::size_t w = 0; w < 4; ++w)
+    for (std::size_t j = 0; j < lanes; ++j) words_[w * 4 + j] = lane[j][w];
   buf_.fill(0);
 }
 
@@ -142,14 +145,15 @@ bool rng::vector_path_is_avx2() {
 }
 
 void rng::refill() {
-  fill_vector(lane_, buf_.data(), block);
+  fill_lanes_vector(words_, buf_.data(), block);
   pos_ = 0;
   half_ = 0;
 }
 
 rng::state_type rng::state() const {
   state_type s;
-  s.lane = lane_;
+  for (std::size_t w = 0; w < 4; ++w)
+    for (std::size_t j = 0; j < lanes; ++j) s.lane[j][w] = words_[w * 4 + j];
   s.buffer = buf_;
   s.pos = pos_;
   s.half = half_;
@@ -157,7 +161,8 @@ rng::state_type rng::state() const {
 }
 
 void rng::restore(const state_type& s) {
-  lane_ = s.lane;
+  for (std::size_t w = 0; w < 4; ++w)
+    for (std::size_t j = 0; j < lanes; ++j) words_[w * 4 + j] = s.lane[j][w];
   buf_ = s.buffer;
   pos_ = s.pos > block ? static_cast<uint32_t>(block) : s.pos;
   half_ = (s.half != 0 && pos_ > 0) ? 1 : 0;

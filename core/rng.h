@@ -149,7 +149,9 @@ class rng {
   // Shared body of bounded_descending (step 1) and bounded_fill (step 0).
   void bounded_run(uint32_t* out, uint32_t range0, uint32_t step, uint32_t count);
 
-  std::array<std::array<uint64_t, 4>, lanes> lane_;
+  // Generator state in vector layout: words_[4 * w + j] is word w of lane j
+  // (transposed from state_type::lane, so a refill needs no shuffling).
+  alignas(32) uint64_t words_[16];
   alignas(64) std::array<uint64_t, block> buf_;
   uint32_t pos_ = block;
   uint32_t half_ = 0;
