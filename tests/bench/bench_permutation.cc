@@ -16,25 +16,11 @@
 
 #include "core/permutation.h"
 #include "core/rng.h"
+#include "tests/bench/bench_data.h"
 
 using namespace plumbline;
 
-namespace {
-
-// Data: normal-ish values from the engine's generator (sum of 4 uniforms),
-// the recent sample shifted by 0.1; quantised to 0.001 so ties are rare but
-// possible, as with a real instrument.
-std::vector<double> make_sample(rng& g, std::size_t n, double shift) {
-  std::vector<double> v(n);
-  for (auto& x : v) {
-    double s = 0;
-    for (int i = 0; i < 4; ++i) s += g.next_double();
-    x = std::round(((s - 2) * 1.7320508 + shift) * 1000) / 1000;
-  }
-  return v;
-}
-
-}  // namespace
+using bench::make_sample;
 
 int main(int argc, char** argv) {
   const bool quick = argc > 1 && std::strcmp(argv[1], "--quick") == 0;
