@@ -382,7 +382,8 @@ TEST_CASE("bounded_descending returns exactly bounded(n), bounded(n - 1), ... in
   }
 }
 
-TEST_CASE("next_double lies in the unit interval on the grid k / 2^53 from the top 53 bits", "[core][rng]") {
+TEST_CASE("next_double lies in the unit interval on the grid k / 2^53 from the top 53 bits",
+          "[core][rng]") {
   for (const uint64_t seed : seeds) {
     INFO("seed " << seed);
     rng g(seed);
