@@ -3,12 +3,9 @@
 //
 // Datasets (NIST StRD, www.itl.nist.gov/div898/strd/univ/, files
 // numacc1.dat .. numacc4.dat). Written from memory, then confirmed against
-// two public transcriptions of the NIST files: the certification scripts
-// that StataCorp publishes (stata.com/support/cert/nist9/univariate/
-// numacc1.do and numacc4.do, which copy the NIST headers and data) and the
-// dataset documentation of the R package RQualification
-// (R/univariateData.R), which describes all four; the NIST pages themselves
-// were not at hand. Certified values are exact by construction:
+// public copies of the NIST files that reproduce their headers and data (the
+// NIST pages themselves were not at hand). Certified values are exact by
+// construction:
 //   NumAcc1  10000001, 10000003, 10000002             mean 10000002, sd 1
 //   NumAcc2  1.2, then 500 pairs (1.1, 1.3): 1001     mean 1.2,      sd 0.1
 //   NumAcc3  1000000.2, then 500 pairs (1000000.1, 1000000.3)
