@@ -170,7 +170,10 @@ expected<bool> interval_from_args(const compare_args& a, interval_options& o) {
              : a.method == "basic"    ? interval_method::basic
                                       : interval_method::bca;
   o.level = a.level;
-  o.resamples = std::min<uint64_t>(a.resamples, max_bootstrap_resamples);
+  if (a.resamples > max_bootstrap_resamples)
+    return make_error("--resamples: a drift interval takes at most " +
+                      std::to_string(max_bootstrap_resamples) + " resamples");
+  o.resamples = a.resamples;
   o.scheme = a.block_scheme == "stationary" ? block_scheme::stationary : block_scheme::circular;
   return true;
 }

@@ -153,6 +153,7 @@ TEST_CASE("compare rejects bad interval options with exit code 2 and one line",
       {"--interval", "mean-diff", "--block", "often"},
       {"--interval", "mean-diff", "--block", "20"},
       {"--interval", "mean-diff", "--block-scheme", "moving"},
+      {"--interval", "mean-diff", "--resamples", "20000000"},
   };
   for (const auto& args : bad) {
     const run_result r = compare(f.dir, f.ref, f.rec, args);
