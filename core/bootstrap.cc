@@ -76,11 +76,8 @@ double cpk_value(double mean, double sd, const interval_options& o) {
   return std::clamp(d / (3 * sd), -ratio_cap, ratio_cap);
 }
 
-struct stats {
-  double mean = 0, sd = 0, quantile = 0;
-};
-
-double quantity_value(const interval_options& o, const stats& x, const stats& y) {
+double quantity_value(const interval_options& o, const window_summary& x,
+                      const window_summary& y) {
   switch (o.quantity) {
     case drift_quantity::mean_diff: return y.mean - x.mean;
     case drift_quantity::median_diff:
@@ -93,8 +90,8 @@ double quantity_value(const interval_options& o, const stats& x, const stats& y)
   return 0;
 }
 
-stats moments(double center, double s, double q, double n) {
-  stats st;
+window_summary moments(double center, double s, double q, double n) {
+  window_summary st;
   st.mean = center + s / n;
   st.sd = n > 1 ? std::sqrt(std::max(0.0, (q - s * s / n) / (n - 1))) : 0.0;
   return st;
@@ -137,7 +134,7 @@ void bootstrap_engine::prepare(window_state& w, std::span<const double> x) {
   w.counts.assign(n, 0);
 }
 
-bootstrap_engine::window_stats bootstrap_engine::resample(window_state& w,
+window_summary bootstrap_engine::resample(window_state& w,
                                                           const interval_options& o,
                                                           uint32_t block, rng& gen) {
   const uint32_t n = static_cast<uint32_t>(w.n);
@@ -200,8 +197,9 @@ bootstrap_engine::window_stats bootstrap_engine::resample(window_state& w,
     }
     visit_block(start, len);
   }
-  window_stats st;
-  if (quant) {
+  if (!quant) return moments(w.center, s, q, n);
+  window_summary st;
+  {
     const double h = static_cast<double>(n - 1) * o.quantile;
     const uint32_t j = std::min(static_cast<uint32_t>(h), n - 1);
     const double frac = h - j;
@@ -222,28 +220,23 @@ bootstrap_engine::window_stats bootstrap_engine::resample(window_state& w,
     if (j + 1 >= n) vj1 = vj;
     st.quantile = frac == 0 ? vj : vj + frac * (vj1 - vj);
     std::fill(w.counts.begin(), w.counts.end(), 0u);
-  } else {
-    const stats m = moments(w.center, s, q, n);
-    st.mean = m.mean;
-    st.sd = m.sd;
   }
   return st;
 }
 
 std::vector<double> bootstrap_engine::jackknife(const window_state& w,
                                                 const interval_options& o, uint32_t block,
-                                                const window_stats& other, bool is_recent) {
+                                                const window_summary& other, bool is_recent) {
   const std::size_t n = w.n;
   const std::size_t len = block <= 1 ? 1 : block;
   const std::size_t groups = (n + len - 1) / len;
   std::vector<double> out(groups);
-  const stats other_st{other.mean, other.sd, other.quantile};
   std::vector<uint8_t> removed;
   if (uses_quantile(o.quantity) && len > 1) removed.assign(n, 0);
   for (std::size_t g = 0; g < groups; ++g) {
     const std::size_t first = g * len, count = std::min(len, n - first);
     const double kept = static_cast<double>(n - count);
-    stats st;
+    window_summary st;
     if (uses_quantile(o.quantity)) {
       const std::size_t m = n - count;
       const double h = static_cast<double>(m - 1) * o.quantile;
@@ -279,7 +272,7 @@ std::vector<double> bootstrap_engine::jackknife(const window_state& w,
       const double q = w.prefix_sq[n] - (w.prefix_sq[first + count] - w.prefix_sq[first]);
       st = moments(w.center, s, q, kept);
     }
-    out[g] = is_recent ? quantity_value(o, other_st, st) : quantity_value(o, st, other_st);
+    out[g] = is_recent ? quantity_value(o, other, st) : quantity_value(o, st, other);
   }
   return out;
 }
@@ -363,15 +356,12 @@ expected<interval_result> bootstrap_engine::run(std::span<const double> referenc
   r.block_length = block;
 
   auto full = [&](const window_state& w) {
-    window_stats st;
-    const stats m = moments(w.center, w.prefix[w.n], w.prefix_sq[w.n], static_cast<double>(w.n));
-    st.mean = m.mean;
-    st.sd = m.sd;
+    window_summary st =
+        moments(w.center, w.prefix[w.n], w.prefix_sq[w.n], static_cast<double>(w.n));
     st.quantile = sample_quantile(w.sorted, opt.quantile);
     return st;
   };
-  const window_stats xs = full(ref_), ys = full(rec_);
-  const stats x{xs.mean, xs.sd, xs.quantile}, y{ys.mean, ys.sd, ys.quantile};
+  const window_summary x = full(ref_), y = full(rec_);
   r.estimate = quantity_value(opt, x, y);
   switch (opt.quantity) {
     case drift_quantity::mean_diff:
@@ -406,10 +396,9 @@ expected<interval_result> bootstrap_engine::run(std::span<const double> referenc
   const bool resample_reference = opt.quantity != drift_quantity::cpk;
   replicates_.resize(opt.resamples);
   for (uint64_t b = 0; b < opt.resamples; ++b) {
-    const window_stats xb = resample_reference ? resample(ref_, opt, block, gen) : xs;
-    const window_stats yb = resample(rec_, opt, block, gen);
-    replicates_[b] = quantity_value(opt, {xb.mean, xb.sd, xb.quantile},
-                                    {yb.mean, yb.sd, yb.quantile});
+    const window_summary xb = resample_reference ? resample(ref_, opt, block, gen) : x;
+    const window_summary yb = resample(rec_, opt, block, gen);
+    replicates_[b] = quantity_value(opt, xb, yb);
   }
   r.resamples = opt.resamples;
   {
@@ -444,8 +433,8 @@ expected<interval_result> bootstrap_engine::run(std::span<const double> referenc
         den += u * u / (nj * nj);
       }
     };
-    if (resample_reference) add(jackknife(ref_, opt, block, ys, false));
-    add(jackknife(rec_, opt, block, xs, true));
+    if (resample_reference) add(jackknife(ref_, opt, block, y, false));
+    add(jackknife(rec_, opt, block, x, true));
     const double z0 = normal_quantile(share);
     const double a = den > 0 ? num / (6 * std::pow(den, 1.5)) : NAN;
     const double z_lo = normal_quantile(alpha), z_hi = -z_lo;

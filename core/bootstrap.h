@@ -116,6 +116,11 @@ struct interval_result {
   std::size_t n_recent = 0;
 };
 
+// One window's (or one resample's) summary: what the quantities are made of.
+struct window_summary {
+  double mean = 0, sd = 0, quantile = 0;
+};
+
 class bootstrap_engine {
  public:
   // Windows in time order, oldest first (order matters for blocks only).
@@ -134,13 +139,10 @@ class bootstrap_engine {
     double center = 0;
     std::size_t n = 0;
   };
-  struct window_stats {
-    double mean = 0, sd = 0, quantile = 0;
-  };
   void prepare(window_state& w, std::span<const double> x);
-  window_stats resample(window_state& w, const interval_options& o, uint32_t block, rng& gen);
+  window_summary resample(window_state& w, const interval_options& o, uint32_t block, rng& gen);
   std::vector<double> jackknife(const window_state& w, const interval_options& o,
-                                uint32_t block, const window_stats& other, bool is_recent);
+                                uint32_t block, const window_summary& other, bool is_recent);
 
   window_state ref_, rec_;
   std::vector<uint32_t> draws_;
