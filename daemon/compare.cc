@@ -12,6 +12,7 @@
 #include "core/permutation.h"
 #include "core/rng.h"
 #include "daemon/csv_input.h"
+#include "daemon/result_json.h"
 
 namespace plumbline {
 
@@ -190,14 +191,6 @@ expected<uint32_t> block_from_args(const std::string& b) {
   return v;
 }
 
-nlohmann::json dependence_json(const dependence_summary& d) {
-  return {{"lag1_autocorrelation", d.lag1},
-          {"lag1_standard_error", d.lag1_se},
-          {"dependent", d.dependent},
-          {"block_length_circular", d.block_circular},
-          {"block_length_stationary", d.block_stationary}};
-}
-
 }  // namespace
 
 int run_compare(const compare_args& a) {
@@ -261,52 +254,13 @@ int run_compare(const compare_args& a) {
   if (a.json) {
     nlohmann::json out;
     if (test_result) {
-      const permutation_result& r = *test_result;
-      nlohmann::json t;
-      t["name"] = std::string(test_name(test));
-      t["statistic"] = r.statistic;
-      if (test == test_kind::ad && !r.constant_data && r.n_reference + r.n_recent > 3)
-        t["statistic_standardized"] = ad_standardized(r.statistic, r.n_reference, r.n_recent);
-      t["p_value"] = r.p_value;
-      t["p_value_low"] = r.p_low;
-      t["p_value_high"] = r.p_high;
+      nlohmann::json t = test_json(*test_result);
       t["p_value_level"] = opt.ci_level;
-      t["resamples"] = r.resamples;
-      t["exceedances"] = r.exceedances;
-      t["exact"] = r.exact;
-      t["stopped_early"] = r.stopped_early;
-      t["constant_data"] = r.constant_data;
-      t["block_length"] = r.block_length;
       t["seed"] = a.seed;
-      t["n_reference"] = r.n_reference;
-      t["n_recent"] = r.n_recent;
       out["test"] = t;
     }
     if (interval) {
-      const interval_result& r = *interval;
-      nlohmann::json j;
-      j["quantity"] = std::string(quantity_name(r.quantity));
-      if (r.quantity == drift_quantity::quantile_diff) j["quantile"] = r.quantile;
-      j["method"] = std::string(method_name(r.method));
-      j["method_used"] = std::string(method_name(r.method_used));
-      j["level"] = r.level;
-      j["estimate"] = r.estimate;
-      j["lower"] = r.lower;
-      j["upper"] = r.upper;
-      j["standard_error"] = r.standard_error;
-      j["reference_value"] = r.reference_value;
-      j["recent_value"] = r.recent_value;
-      j["resamples"] = r.resamples;
-      j["block_length"] = r.block_length;
-      j["block_scheme"] = r.block_length > 1 ? std::string(scheme_name(r.scheme)) : "none";
-      j["degenerate"] = r.degenerate;
-      if (!r.note.empty()) j["note"] = r.note;
-      if (r.method_used == interval_method::bca) {
-        j["bias_correction"] = r.bias_correction;
-        j["acceleration"] = r.acceleration;
-      }
-      j["dependence"] = {{"reference", dependence_json(r.reference_dependence)},
-                         {"recent", dependence_json(r.recent_dependence)}};
+      nlohmann::json j = interval_json(*interval);
       j["seed"] = a.seed;
       out["interval"] = j;
     }
