@@ -4,6 +4,7 @@
 #include <exception>
 #include <iostream>
 
+#include "daemon/check_config.h"
 #include "daemon/compare.h"
 
 #ifndef PLUMBLINE_VERSION
@@ -17,6 +18,8 @@ int main(int argc, char** argv) {
   app.require_subcommand(1);
   plumbline::compare_args compare;
   CLI::App* compare_cmd = plumbline::add_compare_command(app, compare);
+  plumbline::check_config_args check_config;
+  CLI::App* check_config_cmd = plumbline::add_check_config_command(app, check_config);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {
@@ -31,6 +34,7 @@ int main(int argc, char** argv) {
   }
   try {
     if (compare_cmd->parsed()) return plumbline::run_compare(compare);
+    if (check_config_cmd->parsed()) return plumbline::run_check_config(check_config);
   } catch (const std::exception& e) {
     std::cerr << "plumbline: internal error: " << e.what() << "\n";
     return 1;
