@@ -6,6 +6,7 @@
 
 #include "daemon/check_config.h"
 #include "daemon/compare.h"
+#include "daemon/serve.h"
 
 #ifndef PLUMBLINE_VERSION
 #define PLUMBLINE_VERSION "0.0.0"
@@ -20,6 +21,8 @@ int main(int argc, char** argv) {
   CLI::App* compare_cmd = plumbline::add_compare_command(app, compare);
   plumbline::check_config_args check_config;
   CLI::App* check_config_cmd = plumbline::add_check_config_command(app, check_config);
+  plumbline::serve_args serve;
+  CLI::App* serve_cmd = plumbline::add_serve_command(app, serve);
   try {
     app.parse(argc, argv);
   } catch (const CLI::CallForHelp& e) {
@@ -35,6 +38,7 @@ int main(int argc, char** argv) {
   try {
     if (compare_cmd->parsed()) return plumbline::run_compare(compare);
     if (check_config_cmd->parsed()) return plumbline::run_check_config(check_config);
+    if (serve_cmd->parsed()) return plumbline::run_serve(serve, PLUMBLINE_VERSION);
   } catch (const std::exception& e) {
     std::cerr << "plumbline: internal error: " << e.what() << "\n";
     return 1;

@@ -343,6 +343,8 @@ std::string_view reason_name(reject_reason r) {
       return "wrong_dimension";
     case reject_reason::too_many_streams:
       return "too_many_streams";
+    case reject_reason::unmatched_stream:
+      return "unmatched_stream";
   }
   return "unknown";
 }

@@ -65,8 +65,8 @@
 //     line with fewer than three fields, or with an empty value field, is
 //     missing_value; a 65th value field is too_many_values whatever it holds.
 //     line_too_long is reported by the assembler (on_overlong), never by
-//     parse_line. wrong_dimension and too_many_streams are decided by the
-//     daemon's stream table; they are listed here so that every reason a
+//     parse_line. wrong_dimension, too_many_streams and unmatched_stream are
+//     decided by the daemon's stream table; they are listed here so that every reason a
 //     line can be dropped for has one label.
 //
 // Thread-safety. parse_line and for_each_line_in_datagram are pure functions.
@@ -114,8 +114,9 @@ enum class reject_reason : uint8_t {
   too_many_values,   // more than max_values value fields
   wrong_dimension,   // (stream table) value count differs from the stream's
   too_many_streams,  // (stream table) a new stream beyond the configured limit
+  unmatched_stream,  // (stream table) a new stream that no configured group matches
 };
-inline constexpr std::size_t reject_reason_count = 9;
+inline constexpr std::size_t reject_reason_count = 10;
 
 // The snake_case label of `r` ("line_too_long", ...), used as the value of
 // the Prometheus label `reason`. An out-of-range value gives "unknown".

@@ -179,6 +179,7 @@ TEST_CASE("every reject reason has its snake_case label", "[daemon][wire]") {
       {reject_reason::too_many_values, "too_many_values"},
       {reject_reason::wrong_dimension, "wrong_dimension"},
       {reject_reason::too_many_streams, "too_many_streams"},
+      {reject_reason::unmatched_stream, "unmatched_stream"},
   };
   REQUIRE(expected.size() == wire::reject_reason_count);
   std::set<std::string_view> seen;
