@@ -10,6 +10,9 @@
 #   test      build, then run every test suite with ctest
 #   sanitize  deps, then an AddressSanitizer + UndefinedBehaviorSanitizer
 #             build in build-asan/ and the unit suite under it
+#   tsan      deps, then a ThreadSanitizer build in build-tsan/ and the
+#             daemon's tests under it (the integration suite, which runs the
+#             instrumented `plumbline serve`, and the daemon's unit cases)
 #
 # Runs as root on a fresh Debian 12 machine, asks nothing, and can be run
 # again at any time: each step only does what is still missing. Works from
@@ -48,6 +51,7 @@ commands:
   demo      build, then run `plumbline compare` on the demo data
   test      build, then run all test suites (ctest)
   sanitize  deps, then build in build-asan/ with ASan + UBSan and run the unit suite
+  tsan      deps, then build in build-tsan/ with ThreadSanitizer and run the daemon's tests
 EOF
 }
 
@@ -186,6 +190,25 @@ cmd_sanitize() {
   say "sanitize: done"
 }
 
+cmd_tsan() {
+  cmd_deps
+  say "tsan: configuring build-tsan/ with ThreadSanitizer"
+  run cmake -S . -B build-tsan -DCMAKE_BUILD_TYPE=RelWithDebInfo \
+    -DPLUMBLINE_SANITIZE=thread -DPLUMBLINE_BUILD_BENCH=OFF
+  say "tsan: compiling plumbline and the daemon's test suites with $(ncpu) jobs"
+  run cmake --build build-tsan -j"$(ncpu)" --target plumbline plumbline_integration_tests \
+    plumbline_unit_tests
+  # A race report makes the instrumented daemon exit non-zero, which the
+  # integration tests check on every stop.
+  export TSAN_OPTIONS="${TSAN_OPTIONS:-halt_on_error=1 second_deadlock_stack=1}"
+  say "tsan: the integration suite (the real daemon, instrumented)"
+  run ctest --test-dir build-tsan -L integration --output-on-failure --no-tests=error -j2
+  say "tsan: the daemon's unit cases (stream table, evaluator)"
+  run ctest --test-dir build-tsan -L unit -R 'stream table|evaluator' --output-on-failure \
+    --no-tests=error -j2
+  say "tsan: done"
+}
+
 main() {
   if (($# != 1)); then
     usage
@@ -197,6 +220,7 @@ main() {
     demo) cmd_demo ;;
     test) cmd_test ;;
     sanitize) cmd_sanitize ;;
+    tsan) cmd_tsan ;;
     -h | --help | help)
       usage
       exit 0
