@@ -6,7 +6,8 @@
 #   deps      install the Debian packages the build and the tests need
 #             (skipped when all of them are installed already)
 #   build     deps, then a RelWithDebInfo build in build/
-#   demo      build, then compare the demo data in simulator/examples/
+#   demo      build, then compare the demo data in simulator/examples/, then
+#             run `plumbline serve` briefly and feed it the same data live
 #   test      build, then run every test suite with ctest
 #   sanitize  deps, then an AddressSanitizer + UndefinedBehaviorSanitizer
 #             build in build-asan/ and the unit suite under it
@@ -48,7 +49,7 @@ usage: bash deploy/setup.sh COMMAND
 commands:
   deps      install the Debian 12 packages plumbline needs (quick when present)
   build     deps, then build in build/ (RelWithDebInfo)
-  demo      build, then run `plumbline compare` on the demo data
+  demo      build, then run `plumbline compare` on the demo data, then the daemon live
   test      build, then run all test suites (ctest)
   sanitize  deps, then build in build-asan/ with ASan + UBSan and run the unit suite
   tsan      deps, then build in build-tsan/ with ThreadSanitizer and run the daemon's tests
@@ -164,7 +165,90 @@ cmd_demo() {
   run "$bin" compare --reference "$examples/capper_reference.csv" \
     --recent "$examples/capper_recent.csv" --test energy
   echo
+  demo_live "$bin"
+  echo
   say "demo: done. Results are advisory: they do not replace site quality procedures."
+}
+
+# The numbers of a demo CSV file (comment and header lines left out).
+csv_values() { grep -E '^[+-]?[0-9.]' "$1"; }
+
+# One HTTP GET over bash's /dev/tcp (no curl needed); prints the body.
+http_get() {
+  local port="$1" target="$2"
+  exec 4<>"/dev/tcp/127.0.0.1/$port"
+  printf 'GET %s HTTP/1.1\r\nHost: 127.0.0.1\r\nConnection: close\r\n\r\n' "$target" >&4
+  sed '1,/^\r$/d' <&4
+  exec 4<&-
+}
+
+# The daemon, live: start `plumbline serve` with config/demo.toml on free
+# loopback ports, feed it two filler heads' fill weights at a steady pace,
+# show what it concluded, and stop it with SIGTERM.
+demo_live() {
+  local bin="$1" dir pid ready tcp http
+  dir="$(mktemp -d)"
+  say "Live: plumbline serve with config/demo.toml, on free loopback ports."
+  "$bin" serve --config config/demo.toml --ingest 127.0.0.1:0 --http 127.0.0.1:0 \
+    >"$dir/ready" 2>"$dir/log" &
+  pid=$!
+  # Stop the daemon whatever happens from here on.
+  trap 'kill "$pid" 2>/dev/null || true; rm -rf "$dir"' EXIT
+  for _ in $(seq 100); do
+    ready="$(head -n1 "$dir/ready" 2>/dev/null || true)"
+    [[ -n "$ready" ]] && break
+    sleep 0.1
+  done
+  if [[ "$ready" != "plumbline ready "* ]]; then
+    echo "setup.sh: the daemon did not start; its log:" >&2
+    cat "$dir/log" >&2
+    exit 1
+  fi
+  say "$ready"
+  tcp="$(sed -E 's/.*ingest_tcp=[^ ]*:([0-9]+).*/\1/' <<<"$ready")"
+  http="$(sed -E 's/.*http=[^ ]*:([0-9]+).*/\1/' <<<"$ready")"
+  say "Feeding two filler heads of cup line B, 25 fills per head every 0.2 s:"
+  say "  head 4: 400 in-control fills (its baseline), then the 150 after the nozzle was reseated"
+  say "  head 3: 400 in-control fills, then 150 more from the same in-control shift"
+  local -a head4 head3
+  mapfile -t head4 < <(csv_values "$examples/fill_weight_reference.csv"; csv_values "$examples/fill_weight_recent.csv")
+  mapfile -t head3 < <(csv_values "$examples/fill_weight_reference.csv"; csv_values "$examples/fill_weight_reference.csv" | head -n 150)
+  exec 3<>"/dev/tcp/127.0.0.1/$tcp"
+  local i j
+  for ((i = 0; i < ${#head4[@]}; i += 25)); do
+    for ((j = i; j < i + 25 && j < ${#head4[@]}; j++)); do
+      printf 'larkspur/line_b/fill_4,,%s\nlarkspur/line_b/fill_3,,%s\n' "${head4[j]}" "${head3[j]}" >&3
+    done
+    sleep 0.2
+  done
+  exec 3>&-
+  sleep 1
+  echo
+  say "What the daemon says (GET /api/streams/...), one line per filler head:"
+  local s
+  for s in larkspur/line_b/fill_4 larkspur/line_b/fill_3; do
+    http_get "$http" "/api/streams/$s" | /usr/bin/python3 -c '
+import json, sys
+j = json.load(sys.stdin)
+r = j.get("last_result") or {}
+t = (r.get("tests") or [{}])[0]
+i = r.get("interval") or {}
+print("  %-24s alarm %-5s  evaluations %-3d  %s p = %.4g  drift %s %+.3f g [%+.3f, %+.3f]" % (
+    j["name"], "ON" if j["alarm"]["active"] else "off", j["evaluations"], t.get("name", "-"),
+    t.get("p_value", float("nan")), i.get("quantity", "-"), i.get("estimate", float("nan")),
+    i.get("lower", float("nan")), i.get("upper", float("nan"))))'
+  done
+  echo
+  say "The same in Prometheus form (GET /metrics), alarm and drift band:"
+  http_get "$http" /metrics | grep -E '^plumbline_(alarm|drift_(lower|estimate|upper))\{' || true
+  echo
+  say "The daemon's log (stderr):"
+  sed 's/^/  /' "$dir/log"
+  kill -TERM "$pid"
+  wait "$pid" || true
+  trap - EXIT
+  rm -rf "$dir"
+  say "Stopped the daemon (SIGTERM). Run it yourself: $bin serve --config config/demo.toml"
 }
 
 cmd_test() {
