@@ -363,3 +363,61 @@ TEST_CASE("the metrics exposition passes promtool check metrics", "[integration]
   CHECK(slurp(path).find("no safety interlock") != std::string::npos);
   CHECK(d.stop() == 0);
 }
+
+TEST_CASE("a file reference is loaded at start and a shifted feed against it raises the alarm",
+          "[integration][serve]") {
+  temp_dir dir;
+  // The reference run: 200 in-control samples of N(72.5, 0.2) degrees C.
+  dir.write("hold_reference.csv", "# invented reference run\nhold_temp_c\n" + [] {
+    std::ostringstream o;
+    o.precision(17);
+    for (double v : sample(200, 21, 72.5, 0.2)) o << v << "\n";
+    return o.str();
+  }());
+  const std::string cfg = dir.write("plumbline.toml", R"(
+[[group]]
+name = "hold"
+match = "larkspur/pasteuriser/*"
+reference = "file"
+reference_file = "hold_reference.csv"
+reference_size = 200
+recent_size = 50
+every_samples = 25
+alpha = 0.01
+raise_after = 2
+interval_resamples = 499
+)");
+  daemon_process d(dir, {"--config", cfg});
+  const std::string s = "larkspur/pasteuriser/hold_temp";
+  // 100 samples 0.4 degrees C (2 sd) low: the first evaluation comes once 50 are in.
+  send_paced(d, {{s, sample(100, 22, 72.1, 0.2)}}, 25);
+  const json j = stream_json(d, s);
+  CHECK(j["reference_samples"] == 200);
+  CHECK(j["settings"]["reference"] == "file");
+  CHECK(j["evaluations"] == 3);
+  CHECK(j["alarm"]["active"] == true);
+  CHECK(j["last_result"]["interval"]["upper"].get<double>() < 0);
+  CHECK(d.stop() == 0);
+}
+
+TEST_CASE("every_seconds evaluates a full stream on time even without new samples",
+          "[integration][serve]") {
+  temp_dir dir;
+  const std::string cfg = dir.write("plumbline.toml", R"(
+[[group]]
+name = "timed"
+match = "*"
+reference_size = 50
+recent_size = 20
+every_samples = 0
+every_seconds = 1
+interval_resamples = 199
+)");
+  daemon_process d(dir, {"--config", cfg});
+  const std::string s = "larkspur/timed";
+  d.send_tcp(records(s, sample(70, 31, 0, 1)));
+  // No more samples arrive; the timer alone asks for evaluations.
+  CHECK(wait_until([&] { return d.metric(series("plumbline_evaluations_total", s)) >= 3; }, 10));
+  CHECK(d.metric(series("plumbline_samples_total", s)) == 70);
+  CHECK(d.stop() == 0);
+}
