@@ -223,6 +223,18 @@ int run_serve(const serve_args& a, const std::string& version) {
   // place before the ready line, so a stop request right after it is seen.
   asio::io_context control;
   asio::signal_set signals(control, SIGINT, SIGTERM);
+  // SIGHUP would end the process by default. This version cannot re-read
+  // its configuration while running, so it says so and carries on.
+  asio::signal_set hangup(control, SIGHUP);
+  std::function<void()> arm_hangup = [&] {
+    hangup.async_wait([&](boost::system::error_code ec, int) {
+      if (ec) return;
+      log::warn("received SIGHUP: this version does not reload its configuration while "
+                "running; restart the daemon to apply a changed configuration");
+      arm_hangup();
+    });
+  };
+  arm_hangup();
   std::signal(SIGPIPE, SIG_IGN);
 
   ingest.value()->start();
@@ -275,6 +287,7 @@ int run_serve(const serve_args& a, const std::string& version) {
     if (ec) return;
     stopping = true;
     tick.cancel();
+    hangup.cancel();
     log::info(std::string("received ") + (signo == SIGTERM ? "SIGTERM" : "SIGINT") +
               "; stopping: no new connections, draining what was sent");
     ingest.value()->stop_accepting();

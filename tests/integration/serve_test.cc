@@ -421,3 +421,12 @@ interval_resamples = 199
   CHECK(d.metric(series("plumbline_samples_total", s)) == 70);
   CHECK(d.stop() == 0);
 }
+
+TEST_CASE("SIGHUP does not stop the daemon and is logged", "[integration][serve]") {
+  temp_dir dir;
+  daemon_process d(dir, {});
+  ::kill(d.pid(), SIGHUP);
+  CHECK(wait_until([&] { return d.stderr_text().find("received SIGHUP") != std::string::npos; }, 5));
+  CHECK(d.get("/healthz").status == 200);
+  CHECK(d.stop() == 0);
+}
