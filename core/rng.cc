@@ -21,7 +21,10 @@ namespace {
 using u64x4 = uint64_t __attribute__((vector_size(32)));
 
 
-#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__)
+// Not under ThreadSanitizer: the ifunc resolver runs before the sanitizer's
+// runtime is set up, and an instrumented resolver crashes at load time.
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && \
+    !defined(__SANITIZE_THREAD__)
 #define PLUMBLINE_TARGET_CLONES __attribute__((target_clones("avx2", "default")))
 #else
 #define PLUMBLINE_TARGET_CLONES

@@ -79,7 +79,7 @@ TEST_CASE("the stream table refuses unmatched names and streams beyond its limit
   CHECK(t.find_or_create("line/1", stream_name_hash("line/1"), 1).entry != nullptr);
 }
 
-TEST_CASE("concurrent creation gives every name exactly one entry", "[daemon][streams]") {
+TEST_CASE("concurrent creation in the stream table gives every name exactly one entry", "[daemon][streams]") {
   const config::daemon_config c = two_groups();
   constexpr int names = 2000;
   stream_table t(c, names);
