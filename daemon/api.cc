@@ -43,9 +43,12 @@ http::response json_error(unsigned status, const std::string& message) {
 
 std::string_view policy_name(reference_policy p) {
   switch (p) {
-    case reference_policy::baseline: return "baseline";
-    case reference_policy::lagged: return "lagged";
-    case reference_policy::file: return "file";
+    case reference_policy::baseline:
+      return "baseline";
+    case reference_policy::lagged:
+      return "lagged";
+    case reference_policy::file:
+      return "file";
   }
   return "baseline";
 }
@@ -55,13 +58,13 @@ std::string_view policy_name(reference_policy p) {
 bool same_secret(std::string_view a, std::string_view b) {
   unsigned char diff = a.size() == b.size() ? 0 : 1;
   const std::size_t n = std::min(a.size(), b.size());
-  for (std::size_t i = 0; i < n; ++i) diff |= static_cast<unsigned char>(a[i] ^ b[i]);
+  for (std::size_t i = 0; i < n; ++i)
+    diff |= static_cast<unsigned char>(a[i] ^ b[i]);
   return diff == 0;
 }
 
 // "offset=10&limit=5" -> the value of `key`, if present and a number.
-std::optional<std::size_t> query_number(std::string_view query, std::string_view key,
-                                        bool& bad) {
+std::optional<std::size_t> query_number(std::string_view query, std::string_view key, bool& bad) {
   while (!query.empty()) {
     const std::size_t amp = query.find('&');
     std::string_view part = query.substr(0, amp);
@@ -82,7 +85,8 @@ std::optional<std::size_t> query_number(std::string_view query, std::string_view
 
 json settings_json(const monitor_settings& s, const config::stream_group& g) {
   json tests = json::array();
-  for (test_kind t : s.tests) tests.push_back(std::string(test_name(t)));
+  for (test_kind t : s.tests)
+    tests.push_back(std::string(test_name(t)));
   json j{{"group", g.name},
          {"match", g.match},
          {"reference", std::string(policy_name(s.policy))},
@@ -127,10 +131,14 @@ json event_json(const alarm_event& e) {
 
 std::string_view state_name(eval_state s) {
   switch (s) {
-    case eval_state::idle: return "idle";
-    case eval_state::queued: return "queued";
-    case eval_state::running: return "running";
-    case eval_state::running_again: return "running";
+    case eval_state::idle:
+      return "idle";
+    case eval_state::queued:
+      return "queued";
+    case eval_state::running:
+      return "running";
+    case eval_state::running_again:
+      return "running";
   }
   return "idle";
 }
@@ -159,8 +167,9 @@ json detail_json(const stream_entry& e) {
   const stream_monitor& m = e.monitor;
   json j = summary_json(e);
   j["settings"] = settings_json(m.settings(), *e.group);
-  j["windows"] = {{"reference", {{"samples", m.reference_fill()}, {"capacity", m.reference_capacity()}}},
-                  {"recent", {{"samples", m.recent_fill()}, {"capacity", m.recent_capacity()}}}};
+  j["windows"] = {
+      {"reference", {{"samples", m.reference_fill()}, {"capacity", m.reference_capacity()}}},
+      {"recent", {{"samples", m.recent_fill()}, {"capacity", m.recent_capacity()}}}};
   if (m.samples_total() > 0) j["last_sample_time"] = e.last_sample_time;
   j["rejected_samples"] = m.rejected_total();
   if (e.evaluations > 0) {
@@ -189,7 +198,8 @@ json detail_json(const stream_entry& e) {
   }
   const alarm_state& a = m.alarm();
   json history = json::array();
-  for (std::size_t i = 0; i < a.history_size(); ++i) history.push_back(event_json(a.history(i)));
+  for (std::size_t i = 0; i < a.history_size(); ++i)
+    history.push_back(event_json(a.history(i)));
   json alarm{{"active", a.active()},
              {"consecutive_signals", a.consecutive_signals()},
              {"consecutive_quiet", a.consecutive_quiet()},
@@ -197,9 +207,10 @@ json detail_json(const stream_entry& e) {
              {"cleared_total", a.cleared_total()},
              {"history", history},
              {"history_dropped", a.dropped_events()},
-             {"advisory", "Alarms are advisory: they do not replace site quality procedures, "
-                          "inspection plans or a qualified engineer's judgement, and plumbline "
-                          "is no safety interlock."}};
+             {"advisory",
+              "Alarms are advisory: they do not replace site quality procedures, "
+              "inspection plans or a qualified engineer's judgement, and plumbline "
+              "is no safety interlock."}};
   if (auto since = a.active_since()) alarm["active_since"] = *since;
   j["alarm"] = alarm;
   return j;
@@ -248,7 +259,8 @@ std::optional<http::response> api::refuse_post(const http::request& req) const {
   if (!token.empty()) {
     constexpr std::string_view bearer = "Bearer ";
     const std::string& auth = req.authorization;
-    if (!auth.starts_with(bearer) || !same_secret(std::string_view(auth).substr(bearer.size()), token)) {
+    if (!auth.starts_with(bearer) ||
+        !same_secret(std::string_view(auth).substr(bearer.size()), token)) {
       http::response r = json_error(401, "this request needs the API token as a bearer token");
       r.headers.emplace_back("WWW-Authenticate", "Bearer realm=\"plumbline\"");
       return r;
@@ -279,10 +291,8 @@ http::response api::streams_list(const http::request& req) const {
     }
     ++i;
   });
-  return json_response(200, json{{"total", total},
-                                 {"offset", offset},
-                                 {"limit", limit},
-                                 {"streams", list}});
+  return json_response(
+      200, json{{"total", total}, {"offset", offset}, {"limit", limit}, {"streams", list}});
 }
 
 http::response api::stream_detail(const std::string& name) const {
@@ -304,9 +314,8 @@ http::response api::rebaseline(const std::string& name) const {
   }
   log::info("stream " + e->name + " rebaselined on request" +
             (cleared ? "; its alarm was cleared" : ""));
-  return json_response(200, json{{"stream", e->name},
-                                 {"rebaselined", true},
-                                 {"alarm_cleared", cleared}});
+  return json_response(
+      200, json{{"stream", e->name}, {"rebaselined", true}, {"alarm_cleared", cleared}});
 }
 
 }  // namespace plumbline

@@ -17,10 +17,13 @@ double steady_now() {
 
 evaluator::evaluator(unsigned threads, on_done done) : done_(std::move(done)) {
   workers_.reserve(threads);
-  for (unsigned i = 0; i < threads; ++i) workers_.emplace_back([this] { work(); });
+  for (unsigned i = 0; i < threads; ++i)
+    workers_.emplace_back([this] { work(); });
 }
 
-evaluator::~evaluator() { stop(false); }
+evaluator::~evaluator() {
+  stop(false);
+}
 
 void evaluator::schedule(stream_entry& e) {
   eval_state s = e.state.load(std::memory_order_acquire);
@@ -71,13 +74,15 @@ void evaluator::stop(bool drain) {
     stopping_ = true;
     drain_ = drain;
     if (!drain) {
-      for (stream_entry* e : queue_) e->state.store(eval_state::idle, std::memory_order_release);
+      for (stream_entry* e : queue_)
+        e->state.store(eval_state::idle, std::memory_order_release);
       dropped_.fetch_add(queue_.size(), std::memory_order_relaxed);
       queue_.clear();
     }
   }
   cv_.notify_all();
-  for (auto& t : workers_) t.join();
+  for (auto& t : workers_)
+    t.join();
   workers_.clear();
 }
 
@@ -118,16 +123,14 @@ void evaluator::work() {
   }
 }
 
-void evaluator::run_one(stream_entry& e, evaluation_input& input,
-                        evaluation_scratch& scratch) {
+void evaluator::run_one(stream_entry& e, evaluation_input& input, evaluation_scratch& scratch) {
   const double requested = e.requested_at.load(std::memory_order_relaxed);
   {
     std::lock_guard lock(e.mu);
     e.monitor.capture(input);
   }
   const auto t0 = std::chrono::steady_clock::now();
-  evaluation_result result =
-      stream_monitor::evaluate(input, e.group->settings, scratch, e.gen);
+  evaluation_result result = stream_monitor::evaluate(input, e.group->settings, scratch, e.gen);
   const double seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   std::optional<alarm_event> event;

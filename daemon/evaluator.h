@@ -67,8 +67,7 @@ class evaluator {
 
  private:
   void work();
-  void run_one(stream_entry& e, evaluation_input& input,
-               evaluation_scratch& scratch);
+  void run_one(stream_entry& e, evaluation_input& input, evaluation_scratch& scratch);
 
   on_done done_;
   mutable std::mutex mu_;

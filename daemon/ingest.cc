@@ -81,8 +81,7 @@ constexpr std::size_t read_buffer_bytes = 64 * 1024;
 constexpr std::size_t max_datagram_bytes = 65536;
 
 double steady_seconds() {
-  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch())
-      .count();
+  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
 }
 
 }  // namespace
@@ -92,7 +91,12 @@ class tcp_session;
 struct ingest_server::impl {
   impl(asio::io_context& io_, const ingest_limits& limits_, ingest_sink& sink_,
        ingest_counters& counters_)
-      : io(io_), limits(limits_), sink(sink_), counters(counters_), acceptor(io_), udp_socket(io_) {}
+      : io(io_),
+        limits(limits_),
+        sink(sink_),
+        counters(counters_),
+        acceptor(io_),
+        udp_socket(io_) {}
 
   asio::io_context& io;
   ingest_limits limits;
@@ -107,7 +111,7 @@ struct ingest_server::impl {
 
   std::mutex sessions_mu;
   std::set<std::shared_ptr<tcp_session>> sessions;  // guarded by sessions_mu
-  bool closing = false;                              // guarded by sessions_mu
+  bool closing = false;                             // guarded by sessions_mu
 
   void accept();
   void receive();
@@ -216,46 +220,46 @@ void ingest_server::impl::remove(const std::shared_ptr<tcp_session>& s) {
 }
 
 void ingest_server::impl::accept() {
-  acceptor.async_accept(asio::make_strand(io), [this](boost::system::error_code ec,
-                                                      tcp::socket socket) {
-    if (ec == asio::error::operation_aborted || !acceptor.is_open()) return;
-    if (ec) {
-      // Out of descriptors and the like: report, and keep accepting.
-      log::warn("ingest accept failed: " + ec.message());
-      accept();
-      return;
-    }
-    std::string peer;
-    {
-      boost::system::error_code e2;
-      const tcp::endpoint remote = socket.remote_endpoint(e2);
-      peer = e2 ? std::string("(unknown)") : endpoint_text(remote.address(), remote.port());
-    }
-    std::shared_ptr<tcp_session> s;
-    {
-      std::lock_guard lock(sessions_mu);
-      if (closing) return;
-      if (sessions.size() >= limits.max_connections) {
-        counters.connections_refused.fetch_add(1, std::memory_order_relaxed);
-        boost::system::error_code ignored;
-        socket.close(ignored);
-      } else {
-        s = std::make_shared<tcp_session>(std::move(socket), *this);
-        s->peer_ = peer;
-        sessions.insert(s);
-        counters.connections_open.fetch_add(1, std::memory_order_relaxed);
-        counters.connections_total.fetch_add(1, std::memory_order_relaxed);
-      }
-    }
-    if (s) {
-      log::debug("ingest connection from " + peer);
-      s->start();
-    } else {
-      log::warn("refused ingest connection from " + peer + ": " +
-                std::to_string(limits.max_connections) + " connections are open (the limit)");
-    }
-    accept();
-  });
+  acceptor.async_accept(
+      asio::make_strand(io), [this](boost::system::error_code ec, tcp::socket socket) {
+        if (ec == asio::error::operation_aborted || !acceptor.is_open()) return;
+        if (ec) {
+          // Out of descriptors and the like: report, and keep accepting.
+          log::warn("ingest accept failed: " + ec.message());
+          accept();
+          return;
+        }
+        std::string peer;
+        {
+          boost::system::error_code e2;
+          const tcp::endpoint remote = socket.remote_endpoint(e2);
+          peer = e2 ? std::string("(unknown)") : endpoint_text(remote.address(), remote.port());
+        }
+        std::shared_ptr<tcp_session> s;
+        {
+          std::lock_guard lock(sessions_mu);
+          if (closing) return;
+          if (sessions.size() >= limits.max_connections) {
+            counters.connections_refused.fetch_add(1, std::memory_order_relaxed);
+            boost::system::error_code ignored;
+            socket.close(ignored);
+          } else {
+            s = std::make_shared<tcp_session>(std::move(socket), *this);
+            s->peer_ = peer;
+            sessions.insert(s);
+            counters.connections_open.fetch_add(1, std::memory_order_relaxed);
+            counters.connections_total.fetch_add(1, std::memory_order_relaxed);
+          }
+        }
+        if (s) {
+          log::debug("ingest connection from " + peer);
+          s->start();
+        } else {
+          log::warn("refused ingest connection from " + peer + ": " +
+                    std::to_string(limits.max_connections) + " connections are open (the limit)");
+        }
+        accept();
+      });
 }
 
 void ingest_server::impl::receive() {
@@ -331,10 +335,15 @@ void ingest_server::close_all() {
     impl_->closing = true;
     open = impl_->sessions;
   }
-  for (const auto& s : open) s->close();
+  for (const auto& s : open)
+    s->close();
 }
 
-std::optional<tcp::endpoint> ingest_server::tcp_endpoint() const { return impl_->tcp_ep; }
-std::optional<udp::endpoint> ingest_server::udp_endpoint() const { return impl_->udp_ep; }
+std::optional<tcp::endpoint> ingest_server::tcp_endpoint() const {
+  return impl_->tcp_ep;
+}
+std::optional<udp::endpoint> ingest_server::udp_endpoint() const {
+  return impl_->udp_ep;
+}
 
 }  // namespace plumbline

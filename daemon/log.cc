@@ -18,10 +18,14 @@ std::atomic<int> threshold_{static_cast<int>(level::info)};
 
 std::string_view level_name(level l) {
   switch (l) {
-    case level::debug: return "debug";
-    case level::info: return "info";
-    case level::warn: return "warn";
-    case level::error: return "error";
+    case level::debug:
+      return "debug";
+    case level::info:
+      return "info";
+    case level::warn:
+      return "warn";
+    case level::error:
+      return "error";
   }
   return "info";
 }
@@ -33,8 +37,12 @@ std::optional<level> parse_level(std::string_view name) {
   return std::nullopt;
 }
 
-void set_threshold(level l) { threshold_.store(static_cast<int>(l), std::memory_order_relaxed); }
-level threshold() { return static_cast<level>(threshold_.load(std::memory_order_relaxed)); }
+void set_threshold(level l) {
+  threshold_.store(static_cast<int>(l), std::memory_order_relaxed);
+}
+level threshold() {
+  return static_cast<level>(threshold_.load(std::memory_order_relaxed));
+}
 bool enabled(level l) {
   return static_cast<int>(l) >= threshold_.load(std::memory_order_relaxed);
 }
@@ -64,8 +72,8 @@ void write(level l, std::string_view message) {
   gmtime_r(&secs, &tm);
   std::array<char, 64> stamp{};
   const int n = std::snprintf(stamp.data(), stamp.size(), "%04d-%02d-%02dT%02d:%02d:%02d.%03dZ ",
-                              tm.tm_year + 1900, tm.tm_mon + 1, tm.tm_mday, tm.tm_hour,
-                              tm.tm_min, tm.tm_sec, static_cast<int>(ms.count() % 1000));
+                              tm.tm_year + 1900, tm.tm_mon + 1, tm.tm_mday, tm.tm_hour, tm.tm_min,
+                              tm.tm_sec, static_cast<int>(ms.count() % 1000));
   std::string line(stamp.data(), n > 0 ? static_cast<std::size_t>(n) : 0);
   std::string_view name = level_name(l);
   line += name;

@@ -35,10 +35,18 @@ bool enabled(level l);
 // Writes one event line (see above).
 void write(level l, std::string_view message);
 
-inline void debug(std::string_view m) { if (enabled(level::debug)) write(level::debug, m); }
-inline void info(std::string_view m) { write(level::info, m); }
-inline void warn(std::string_view m) { write(level::warn, m); }
-inline void error(std::string_view m) { write(level::error, m); }
+inline void debug(std::string_view m) {
+  if (enabled(level::debug)) write(level::debug, m);
+}
+inline void info(std::string_view m) {
+  write(level::info, m);
+}
+inline void warn(std::string_view m) {
+  write(level::warn, m);
+}
+inline void error(std::string_view m) {
+  write(level::error, m);
+}
 
 // The line `write` would print, without the time stamp; exposed for tests.
 std::string format_message(std::string_view message);

@@ -47,19 +47,24 @@ std::string quantity_label(const interval_result& r) {
 
 daemon_metrics::daemon_metrics(const stream_table& streams, const ingest_counters& ingest,
                                const std::string& version)
-    : streams_(streams), ingest_(ingest), version_(version), registry_(std::make_shared<pm::Registry>()) {
+    : streams_(streams),
+      ingest_(ingest),
+      version_(version),
+      registry_(std::make_shared<pm::Registry>()) {
   auto& fam = pm::BuildHistogram()
                   .Name("plumbline_evaluation_seconds")
-                  .Help("Wall time of one stream evaluation (all its tests and its interval), "
-                        "in seconds.")
+                  .Help(
+                      "Wall time of one stream evaluation (all its tests and its interval), "
+                      "in seconds.")
                   .Register(*registry_);
   const pm::Histogram::BucketBoundaries buckets{0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05,
                                                 0.1,    0.25,  0.5,    1,     2.5,  5,     10};
   evaluation_seconds_ = &fam.Add({}, buckets);
   auto& lat = pm::BuildHistogram()
                   .Name("plumbline_evaluation_latency_seconds")
-                  .Help("Time from a stream's evaluation request (enough new samples, or its "
-                        "timer) to its result, queueing included, in seconds.")
+                  .Help(
+                      "Time from a stream's evaluation request (enough new samples, or its "
+                      "timer) to its result, queueing included, in seconds.")
                   .Register(*registry_);
   evaluation_latency_ = &lat.Add({}, buckets);
 }
@@ -75,17 +80,17 @@ std::string daemon_metrics::render() const {
                        "Alarms raised on the stream since the daemon started.", T::Counter);
   auto p_value = family("plumbline_p_value",
                         "p-value of the stream's last evaluation, per permutation test.", T::Gauge);
-  auto statistic = family("plumbline_test_statistic",
-                          "Observed test statistic of the stream's last evaluation, per test.",
-                          T::Gauge);
-  auto lower = family("plumbline_drift_lower",
-                      "Lower end of the last bootstrap drift interval, in the quantity's units.",
-                      T::Gauge);
+  auto statistic =
+      family("plumbline_test_statistic",
+             "Observed test statistic of the stream's last evaluation, per test.", T::Gauge);
+  auto lower =
+      family("plumbline_drift_lower",
+             "Lower end of the last bootstrap drift interval, in the quantity's units.", T::Gauge);
   auto estimate = family("plumbline_drift_estimate",
                          "Point estimate of the last drift (recent against reference).", T::Gauge);
-  auto upper = family("plumbline_drift_upper",
-                      "Upper end of the last bootstrap drift interval, in the quantity's units.",
-                      T::Gauge);
+  auto upper =
+      family("plumbline_drift_upper",
+             "Upper end of the last bootstrap drift interval, in the quantity's units.", T::Gauge);
   auto window = family("plumbline_window_samples",
                        "Samples held in the stream's reference and recent windows.", T::Gauge);
   auto samples = family("plumbline_samples_total", "Samples accepted for the stream.", T::Counter);
@@ -133,16 +138,16 @@ std::string daemon_metrics::render() const {
     out.push_back(std::move(*f));
   }
 
-  auto rejected = family("plumbline_lines_rejected_total",
-                         "Ingest lines dropped, by reason; the lines around them are kept.",
-                         T::Counter);
+  auto rejected =
+      family("plumbline_lines_rejected_total",
+             "Ingest lines dropped, by reason; the lines around them are kept.", T::Counter);
   for (std::size_t i = 0; i < wire::reject_reason_count; ++i) {
     add(rejected, {{"reason", std::string(wire::reason_name(static_cast<wire::reject_reason>(i)))}},
         static_cast<double>(ingest_.rejected[i].load(std::memory_order_relaxed)));
   }
   out.push_back(std::move(rejected));
-  auto records = family("plumbline_records_total", "Ingest records accepted, all streams.",
-                        T::Counter);
+  auto records =
+      family("plumbline_records_total", "Ingest records accepted, all streams.", T::Counter);
   add(records, {}, static_cast<double>(ingest_.records.load(std::memory_order_relaxed)));
   out.push_back(std::move(records));
   auto coalesced = family("plumbline_evaluations_coalesced_total",

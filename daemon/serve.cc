@@ -59,7 +59,8 @@ expected<asio::ip::address> resolve_host(const std::string& host) {
   asio::io_context io;
   asio::ip::tcp::resolver resolver(io);
   auto results = resolver.resolve(host, "", ec);
-  if (ec || results.empty()) return make_error("cannot resolve host '" + host + "': " + ec.message());
+  if (ec || results.empty())
+    return make_error("cannot resolve host '" + host + "': " + ec.message());
   return results.begin()->endpoint().address();
 }
 
@@ -77,7 +78,8 @@ int run_serve(const serve_args& a, const std::string& version) {
   } else {
     config::load_result loaded = config::load_config_file(a.config);
     if (!loaded.config) {
-      for (const auto& e : loaded.errors) std::cerr << e.str() << "\n";
+      for (const auto& e : loaded.errors)
+        std::cerr << e.str() << "\n";
       std::cerr << "plumbline: " << a.config << ": configuration has " << loaded.errors.size()
                 << (loaded.errors.size() == 1 ? " error" : " errors") << "; not starting\n";
       return 2;
@@ -183,7 +185,8 @@ int run_serve(const serve_args& a, const std::string& version) {
     return 1;
   }
   // UDP shares the TCP port number when the TCP port was picked freely.
-  if (udp_at && tcp_at && udp_at->port() == 0 && tcp_at->port() == 0 && ingest.value()->tcp_endpoint())
+  if (udp_at && tcp_at && udp_at->port() == 0 && tcp_at->port() == 0 &&
+      ingest.value()->tcp_endpoint())
     udp_at->port(ingest.value()->tcp_endpoint()->port());
   std::unique_ptr<ingest_server> udp_server;
   if (udp_at) {
@@ -205,8 +208,8 @@ int run_serve(const serve_args& a, const std::string& version) {
   if (http_at) {
     http::server_limits hl;
     hl.max_connections = cfg.http.max_connections;
-    auto w = http::server::create(http_io, *http_at,
-                                  [&routes](const http::request& r) { return routes.handle(r); }, hl);
+    auto w = http::server::create(
+        http_io, *http_at, [&routes](const http::request& r) { return routes.handle(r); }, hl);
     if (!w) {
       log::error(w.err().message);
       eval.stop(false);
@@ -229,8 +232,9 @@ int run_serve(const serve_args& a, const std::string& version) {
   std::function<void()> arm_hangup = [&] {
     hangup.async_wait([&](boost::system::error_code ec, int) {
       if (ec) return;
-      log::warn("received SIGHUP: this version does not reload its configuration while "
-                "running; restart the daemon to apply a changed configuration");
+      log::warn(
+          "received SIGHUP: this version does not reload its configuration while "
+          "running; restart the daemon to apply a changed configuration");
       arm_hangup();
     });
   };
@@ -245,15 +249,16 @@ int run_serve(const serve_args& a, const std::string& version) {
   auto http_guard = asio::make_work_guard(http_io);
   const unsigned io_threads = std::min(cores, 4u);
   std::vector<std::thread> threads;
-  for (unsigned i = 0; i < io_threads; ++i) threads.emplace_back([&] { ingest_io.run(); });
+  for (unsigned i = 0; i < io_threads; ++i)
+    threads.emplace_back([&] { ingest_io.run(); });
   std::thread http_thread([&] { http_io.run(); });
 
   const std::string tcp_text = listener_text(ingest.value()->tcp_endpoint());
   const std::string udp_text = udp_server ? listener_text(udp_server->udp_endpoint()) : "off";
   const std::string http_text =
       web ? listener_text(std::optional<asio::ip::tcp::endpoint>(web->local_endpoint())) : "off";
-  log::info("listening: ingest_tcp=" + tcp_text + " ingest_udp=" + udp_text +
-            " http=" + http_text + "; " + std::to_string(io_threads) + " ingest thread(s), " +
+  log::info("listening: ingest_tcp=" + tcp_text + " ingest_udp=" + udp_text + " http=" + http_text +
+            "; " + std::to_string(io_threads) + " ingest thread(s), " +
             std::to_string(eval_threads) + " evaluation worker(s)");
   std::cout << "plumbline ready ingest_tcp=" << tcp_text << " ingest_udp=" << udp_text
             << " http=" << http_text << std::endl;
@@ -294,21 +299,20 @@ int run_serve(const serve_args& a, const std::string& version) {
     if (udp_server) udp_server->stop_accepting();
     // A short grace period for bytes already in flight, then close.
     auto grace = std::make_shared<asio::steady_timer>(control, std::chrono::milliseconds(300));
-    grace->async_wait([&, grace](boost::system::error_code) {
-      ingest.value()->close_all();
-    });
+    grace->async_wait([&, grace](boost::system::error_code) { ingest.value()->close_all(); });
   });
   control.run();
 
   ingest_guard.reset();
-  for (auto& t : threads) t.join();
+  for (auto& t : threads)
+    t.join();
   eval.stop(true);
   if (web) web->stop();
   http_guard.reset();
   http_thread.join();
   log::info("stopped: " + std::to_string(counters.records.load()) + " records accepted, " +
-            std::to_string(eval.completed()) + " evaluations, " +
-            std::to_string(eval.coalesced()) + " coalesced");
+            std::to_string(eval.completed()) + " evaluations, " + std::to_string(eval.coalesced()) +
+            " coalesced");
   return 0;
 }
 

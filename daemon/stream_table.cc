@@ -30,7 +30,8 @@ uint64_t stream_name_hash(std::string_view name) {
     left -= 8;
   }
   uint64_t tail = 0;
-  for (std::size_t i = 0; i < left; ++i) tail |= static_cast<uint64_t>(static_cast<unsigned char>(p[i])) << (8 * i);
+  for (std::size_t i = 0; i < left; ++i)
+    tail |= static_cast<uint64_t>(static_cast<unsigned char>(p[i])) << (8 * i);
   h = (h ^ tail) * 0x94d049bb133111ebull;
   h ^= h >> 30;
   h *= 0xbf58476d1ce4e5b9ull;
@@ -64,13 +65,16 @@ stream_table::stream_table(const config::daemon_config& config, std::size_t max_
       slots_(new std::atomic<stream_entry*>[mask_ + 1]),
       entries_(new std::atomic<stream_entry*>[max_streams]),
       hook_(std::move(hook)) {
-  for (std::size_t i = 0; i <= mask_; ++i) slots_[i].store(nullptr, std::memory_order_relaxed);
-  for (std::size_t i = 0; i < max_streams; ++i) entries_[i].store(nullptr, std::memory_order_relaxed);
+  for (std::size_t i = 0; i <= mask_; ++i)
+    slots_[i].store(nullptr, std::memory_order_relaxed);
+  for (std::size_t i = 0; i < max_streams; ++i)
+    entries_[i].store(nullptr, std::memory_order_relaxed);
 }
 
 stream_table::~stream_table() {
   const std::size_t n = size();
-  for (std::size_t i = 0; i < n; ++i) delete entries_[i].load(std::memory_order_relaxed);
+  for (std::size_t i = 0; i < n; ++i)
+    delete entries_[i].load(std::memory_order_relaxed);
 }
 
 stream_entry* stream_table::find(std::string_view name, uint64_t hash) const {
@@ -96,7 +100,8 @@ stream_table::lookup stream_table::find_or_create(std::string_view name, uint64_
   auto* e = new stream_entry(std::string(name), hash, *group, dim, config_.evaluation.seed);
   if (hook_) hook_(*e);
   std::size_t i = hash & mask_;
-  while (slots_[i].load(std::memory_order_relaxed) != nullptr) i = (i + 1) & mask_;
+  while (slots_[i].load(std::memory_order_relaxed) != nullptr)
+    i = (i + 1) & mask_;
   entries_[n].store(e, std::memory_order_release);
   count_.store(n + 1, std::memory_order_release);
   slots_[i].store(e, std::memory_order_release);

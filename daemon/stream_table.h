@@ -53,10 +53,10 @@ struct stream_entry {
   mutable std::mutex mu;
   // Guarded by mu.
   stream_monitor monitor;
-  uint64_t since_trigger = 0;      // samples since the last count trigger
-  bool primed = false;             // the windows were full at some push since start/rebaseline
-  double last_sample_time = 0;     // the newest record's time, Unix seconds
-  double last_trigger_time = 0;    // receipt clock of the last trigger, Unix seconds
+  uint64_t since_trigger = 0;    // samples since the last count trigger
+  bool primed = false;           // the windows were full at some push since start/rebaseline
+  double last_sample_time = 0;   // the newest record's time, Unix seconds
+  double last_trigger_time = 0;  // receipt clock of the last trigger, Unix seconds
   uint64_t evaluations = 0;
   double last_evaluation_time = 0;  // Unix seconds; 0 = never
   double last_evaluation_seconds = 0;
@@ -79,8 +79,7 @@ class stream_table {
   using on_create = std::function<void(stream_entry&)>;
 
   // REQUIRES: 1 <= max_streams <= max_stream_limit; `config` outlives the table.
-  stream_table(const config::daemon_config& config, std::size_t max_streams,
-               on_create hook = {});
+  stream_table(const config::daemon_config& config, std::size_t max_streams, on_create hook = {});
   ~stream_table();
   stream_table(const stream_table&) = delete;
   stream_table& operator=(const stream_table&) = delete;
@@ -106,7 +105,8 @@ class stream_table {
   template <typename F>
   void for_each(F&& f) const {
     const std::size_t n = size();
-    for (std::size_t i = 0; i < n; ++i) f(*entries_[i].load(std::memory_order_acquire));
+    for (std::size_t i = 0; i < n; ++i)
+      f(*entries_[i].load(std::memory_order_acquire));
   }
 
   // The entry by name, hashing it first.

@@ -54,7 +54,8 @@ std::vector<double> sample(std::size_t n, uint64_t seed, double mean, double sd)
 std::string records(const std::string& stream, const std::vector<double>& values) {
   std::ostringstream o;
   o.precision(17);
-  for (double v : values) o << stream << ",," << v << "\n";
+  for (double v : values)
+    o << stream << ",," << v << "\n";
   return o.str();
 }
 
@@ -89,7 +90,8 @@ void send_paced(const daemon_process& d,
       text += records(name, std::vector<double>(values.begin() + at, values.begin() + end));
     }
     d.send_tcp(text);
-    for (const auto& s : streams) REQUIRE(wait_until([&] { return settled(d, s.first); }));
+    for (const auto& s : streams)
+      REQUIRE(wait_until([&] { return settled(d, s.first); }));
   }
 }
 
@@ -193,25 +195,58 @@ recent_size = 50
   for (int i = 0; i < 20; ++i) {
     ok(i);
     switch (i) {
-      case 0: text += std::string(300, 'x') + "\n"; break;                // line_too_long
-      case 1: text += "bad name!,,1\n"; break;                            // bad_stream_name
-      case 2: text += "larkspur/a,yesterday,1\n"; break;                  // bad_time
-      case 3: text += "larkspur/a,,12abc\n"; break;                       // bad_value
-      case 4: text += "larkspur/a,,nan\n"; break;                         // non_finite_value
-      case 5: text += "larkspur/a,,inf\n"; break;                         // non_finite_value
-      case 6: text += "larkspur/a,\n"; break;                             // missing_value
-      case 7: text += "larkspur/a,,1,2\n"; break;                         // wrong_dimension
-      case 8: text += "pair/p,,1,2\n"; ++valid_pair; break;
-      case 9: text += "pair/p,,1\n"; break;                               // wrong_dimension
-      case 10: text += "elsewhere/x,,1\n"; break;                         // unmatched_stream
-      case 11: text += "# a comment\n\n"; break;                          // ignored
-      case 12: text += "larkspur/a,1764633600.5,501\n"; ++valid_a; break;
-      case 13: text += "larkspur/a,2026-12-01T23:00:00Z,501\n"; ++valid_a; break;
-      default: break;
+      case 0:
+        text += std::string(300, 'x') + "\n";
+        break;  // line_too_long
+      case 1:
+        text += "bad name!,,1\n";
+        break;  // bad_stream_name
+      case 2:
+        text += "larkspur/a,yesterday,1\n";
+        break;  // bad_time
+      case 3:
+        text += "larkspur/a,,12abc\n";
+        break;  // bad_value
+      case 4:
+        text += "larkspur/a,,nan\n";
+        break;  // non_finite_value
+      case 5:
+        text += "larkspur/a,,inf\n";
+        break;  // non_finite_value
+      case 6:
+        text += "larkspur/a,\n";
+        break;  // missing_value
+      case 7:
+        text += "larkspur/a,,1,2\n";
+        break;  // wrong_dimension
+      case 8:
+        text += "pair/p,,1,2\n";
+        ++valid_pair;
+        break;
+      case 9:
+        text += "pair/p,,1\n";
+        break;  // wrong_dimension
+      case 10:
+        text += "elsewhere/x,,1\n";
+        break;  // unmatched_stream
+      case 11:
+        text += "# a comment\n\n";
+        break;  // ignored
+      case 12:
+        text += "larkspur/a,1764633600.5,501\n";
+        ++valid_a;
+        break;
+      case 13:
+        text += "larkspur/a,2026-12-01T23:00:00Z,501\n";
+        ++valid_a;
+        break;
+      default:
+        break;
     }
   }
   // Streams beyond the limit of 5: a and p exist; c1..c3 fit, c4 and c5 do not.
-  for (int i = 1; i <= 5; ++i) text += "larkspur/c" + std::to_string(i) + ",,1\n";
+  for (int i = 1; i <= 5; ++i)
+    text += "larkspur/c" + std::to_string(i) + ",,1\n";
   d.send_tcp(text);
   auto rejected = [&](const std::string& reason) {
     return d.metric("plumbline_lines_rejected_total{reason=\"" + reason + "\"}");
@@ -243,9 +278,11 @@ TEST_CASE("many concurrent connections each deliver all their records", "[integr
       d.send_tcp(records(stream, sample(per_sender, 100 + s, 0, 1)));
     });
   }
-  for (auto& t : threads) t.join();
+  for (auto& t : threads)
+    t.join();
   double total = 0;
-  for (int k = 0; k < 8; ++k) total += d.metric(series("plumbline_samples_total", "larkspur/conn_" + std::to_string(k)));
+  for (int k = 0; k < 8; ++k)
+    total += d.metric(series("plumbline_samples_total", "larkspur/conn_" + std::to_string(k)));
   CHECK(total == senders * per_sender);
   CHECK(d.metric("plumbline_records_total") == senders * per_sender);
   CHECK(d.stop() == 0);
@@ -258,7 +295,8 @@ TEST_CASE("UDP datagrams of several records are ingested", "[integration][serve]
   for (int i = 0; i < 50; ++i) {
     send_udp(d.udp_port, "larkspur/udp,,1.5\nlarkspur/udp,,2.5\n# note\nlarkspur/udp,,3.5");
   }
-  CHECK(wait_until([&] { return d.metric(series("plumbline_samples_total", "larkspur/udp")) == 150; }, 10));
+  CHECK(wait_until(
+      [&] { return d.metric(series("plumbline_samples_total", "larkspur/udp")) == 150; }, 10));
   CHECK(d.stop() == 0);
 }
 
@@ -279,7 +317,8 @@ TEST_CASE("connections beyond the limit are refused and idle ones are closed",
   // The two open ones send nothing, so they are closed after about 1 s.
   const auto t0 = std::chrono::steady_clock::now();
   read_all(c1, 5);
-  const double waited = std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  const double waited =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   CHECK(waited > 0.5);
   CHECK(waited < 4);
   CHECK(wait_until([&] { return d.metric("plumbline_connections") == 0; }, 5));
@@ -291,8 +330,9 @@ TEST_CASE("connections beyond the limit are refused and idle ones are closed",
 
 TEST_CASE("POST needs the API token when one is configured", "[integration][serve]") {
   temp_dir dir;
-  const std::string cfg = dir.write("plumbline.toml", std::string(small_config) +
-                                                          "\n[http]\napi_token = \"larkspur-qa-token-0417\"\n");
+  const std::string cfg =
+      dir.write("plumbline.toml",
+                std::string(small_config) + "\n[http]\napi_token = \"larkspur-qa-token-0417\"\n");
   daemon_process d(dir, {"--config", cfg});
   d.send_tcp("larkspur/t,,1\n");
   const std::string target = "/api/streams/larkspur/t/rebaseline";
@@ -311,8 +351,7 @@ TEST_CASE("POST is refused when HTTP listens beyond loopback without a token",
           "[integration][serve]") {
   temp_dir dir;
   const std::string cfg = dir.write("plumbline.toml", small_config);
-  daemon_process d(dir, {"--config", cfg, "--ingest", "127.0.0.1:0", "--http", "0.0.0.0:0"},
-                   false);
+  daemon_process d(dir, {"--config", cfg, "--ingest", "127.0.0.1:0", "--http", "0.0.0.0:0"}, false);
   d.send_tcp("larkspur/t,,1\n");
   CHECK(d.post("/api/streams/larkspur/t/rebaseline").status == 403);
   CHECK(d.get("/api/streams/larkspur/t").status == 200);
@@ -341,7 +380,8 @@ TEST_CASE("the stream API lists streams and escapes what it returns", "[integrat
 TEST_CASE("a configuration with errors stops serve with exit code 2 and positions",
           "[integration][serve]") {
   temp_dir dir;
-  const std::string cfg = dir.write("bad.toml", "[[group]]\nname = \"x\"\nmatch = \"*\"\nalpha = 7\n");
+  const std::string cfg =
+      dir.write("bad.toml", "[[group]]\nname = \"x\"\nmatch = \"*\"\nalpha = 7\n");
   const run_result r = run_plumbline(dir, {"serve", "--config", cfg});
   CHECK(r.exit_code == 2);
   CHECK(r.err.find("bad.toml:4:") != std::string::npos);
@@ -352,10 +392,12 @@ TEST_CASE("the metrics exposition passes promtool check metrics", "[integration]
   const std::string cfg = dir.write("plumbline.toml", small_config);
   daemon_process d(dir, {"--config", cfg});
   d.send_tcp(records("larkspur/m", sample(300, 5, 10, 1)));
-  REQUIRE(wait_until([&] { return d.metric(series("plumbline_evaluations_total", "larkspur/m")) >= 1; }));
+  REQUIRE(wait_until(
+      [&] { return d.metric(series("plumbline_evaluations_total", "larkspur/m")) >= 1; }));
   const std::string path = dir.write("metrics.txt", d.get("/metrics").body);
   // promtool (Debian's prometheus package) is the reference for the format.
-  const run_result r = run_program(dir, "/bin/sh", {"-c", "promtool check metrics < " + shell_quote(path)});
+  const run_result r =
+      run_program(dir, "/bin/sh", {"-c", "promtool check metrics < " + shell_quote(path)});
   INFO(r.out << r.err);
   CHECK(r.exit_code == 0);
   // The alarm's HELP carries the advisory caution.
@@ -368,12 +410,14 @@ TEST_CASE("a file reference is loaded at start and a shifted feed against it rai
           "[integration][serve]") {
   temp_dir dir;
   // The reference run: 200 in-control samples of N(72.5, 0.2) degrees C.
-  dir.write("hold_reference.csv", "# invented reference run\nhold_temp_c\n" + [] {
-    std::ostringstream o;
-    o.precision(17);
-    for (double v : sample(200, 21, 72.5, 0.2)) o << v << "\n";
-    return o.str();
-  }());
+  dir.write(
+      "hold_reference.csv", "# invented reference run\nhold_temp_c\n" + [] {
+        std::ostringstream o;
+        o.precision(17);
+        for (double v : sample(200, 21, 72.5, 0.2))
+          o << v << "\n";
+        return o.str();
+      }());
   const std::string cfg = dir.write("plumbline.toml", R"(
 [[group]]
 name = "hold"
@@ -426,7 +470,8 @@ TEST_CASE("SIGHUP does not stop the daemon and is logged", "[integration][serve]
   temp_dir dir;
   daemon_process d(dir, {});
   ::kill(d.pid(), SIGHUP);
-  CHECK(wait_until([&] { return d.stderr_text().find("received SIGHUP") != std::string::npos; }, 5));
+  CHECK(
+      wait_until([&] { return d.stderr_text().find("received SIGHUP") != std::string::npos; }, 5));
   CHECK(d.get("/healthz").status == 200);
   CHECK(d.stop() == 0);
 }

@@ -54,8 +54,8 @@ inline int connect_loopback(uint16_t port, int type = SOCK_STREAM) {
   addr.sin_addr.s_addr = htonl(INADDR_LOOPBACK);
   if (::connect(fd, reinterpret_cast<sockaddr*>(&addr), sizeof addr) != 0) {
     ::close(fd);
-    throw std::runtime_error("connect to port " + std::to_string(port) + " failed: " +
-                             std::strerror(errno));
+    throw std::runtime_error("connect to port " + std::to_string(port) +
+                             " failed: " + std::strerror(errno));
   }
   return fd;
 }
@@ -99,8 +99,10 @@ inline http_reply http_request(uint16_t port, const std::string& method, const s
                                const std::string& body = "") {
   const int fd = connect_loopback(port);
   std::string req = method + " " + target + " HTTP/1.1\r\nHost: 127.0.0.1\r\nConnection: close\r\n";
-  for (const auto& h : extra_headers) req += h + "\r\n";
-  if (!body.empty() || method == "POST") req += "Content-Length: " + std::to_string(body.size()) + "\r\n";
+  for (const auto& h : extra_headers)
+    req += h + "\r\n";
+  if (!body.empty() || method == "POST")
+    req += "Content-Length: " + std::to_string(body.size()) + "\r\n";
   req += "\r\n" + body;
   write_all(fd, req);
   const std::string raw = read_all(fd);
@@ -156,7 +158,8 @@ class daemon_process {
       if (null >= 0) ::dup2(null, STDIN_FILENO);
       ::close(out_pipe[0]);
       std::vector<char*> cargv;
-      for (auto& s : argv) cargv.push_back(s.data());
+      for (auto& s : argv)
+        cargv.push_back(s.data());
       cargv.push_back(nullptr);
       ::execv(cargv[0], cargv.data());
       ::_exit(127);
@@ -173,9 +176,8 @@ class daemon_process {
       const std::size_t at = ready_line_.find(key);
       if (at == std::string::npos) throw std::runtime_error("no " + key + " in " + ready_line_);
       const std::size_t end = ready_line_.find(' ', at);
-      const std::string value = ready_line_.substr(at + key.size(), end == std::string::npos
-                                                                        ? std::string::npos
-                                                                        : end - at - key.size());
+      const std::string value = ready_line_.substr(
+          at + key.size(), end == std::string::npos ? std::string::npos : end - at - key.size());
       const uint16_t port = split_host_port(value).port;
       if (key == "ingest_tcp=") tcp_port = port;
       if (key == "ingest_udp=") udp_port = port;
@@ -196,7 +198,8 @@ class daemon_process {
   int stop(int signo = SIGTERM, double timeout_s = 15) {
     if (pid_ <= 0) return exit_code_;
     ::kill(pid_, signo);
-    const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
+    const auto deadline =
+        std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
     int status = 0;
     for (;;) {
       const pid_t r = ::waitpid(pid_, &status, WNOHANG);
@@ -254,7 +257,8 @@ class daemon_process {
   }
   std::string read_line(double timeout_s) {
     std::string line;
-    const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
+    const auto deadline =
+        std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_s);
     while (std::chrono::steady_clock::now() < deadline) {
       pollfd p{out_fd_, POLLIN, 0};
       if (::poll(&p, 1, 100) <= 0) continue;

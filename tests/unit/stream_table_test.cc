@@ -4,13 +4,14 @@
 // (lookup finds what was created, limits hold, coalescing counts merged
 // requests, nothing runs twice at once), checked under concurrency so that
 // the ThreadSanitizer build in CI sees the real access patterns.
+#include "daemon/stream_table.h"
+
 #include <catch2/catch.hpp>
 #include <set>
 #include <thread>
 
 #include "config/options.h"
 #include "daemon/evaluator.h"
-#include "daemon/stream_table.h"
 
 namespace {
 
@@ -79,7 +80,8 @@ TEST_CASE("the stream table refuses unmatched names and streams beyond its limit
   CHECK(t.find_or_create("line/1", stream_name_hash("line/1"), 1).entry != nullptr);
 }
 
-TEST_CASE("concurrent creation in the stream table gives every name exactly one entry", "[daemon][streams]") {
+TEST_CASE("concurrent creation in the stream table gives every name exactly one entry",
+          "[daemon][streams]") {
   const config::daemon_config c = two_groups();
   constexpr int names = 2000;
   stream_table t(c, names);
@@ -94,11 +96,13 @@ TEST_CASE("concurrent creation in the stream table gives every name exactly one 
       }
     });
   }
-  for (auto& th : threads) th.join();
+  for (auto& th : threads)
+    th.join();
   CHECK(t.size() == names);
   std::set<stream_entry*> distinct;
   for (int j = 0; j < names; ++j) {
-    for (int k = 1; k < 4; ++k) CHECK(seen[k][j] == seen[0][j]);
+    for (int k = 1; k < 4; ++k)
+      CHECK(seen[k][j] == seen[0][j]);
     distinct.insert(seen[0][j]);
   }
   CHECK(distinct.size() == names);
@@ -134,7 +138,8 @@ TEST_CASE("the evaluator coalesces requests for a stream and runs it one at a ti
       }
     });
   }
-  for (auto& th : threads) th.join();
+  for (auto& th : threads)
+    th.join();
   ev.stop(true);
   // Every request either ran or was merged into one that ran.
   CHECK(static_cast<uint64_t>(done.load()) + ev.coalesced() + ev.dropped_at_stop() == 600);
@@ -151,12 +156,15 @@ TEST_CASE("stopping the evaluator without draining drops what is queued", "[daem
   for (int s = 0; s < 50; ++s) {
     const std::string n = "line/" + std::to_string(s);
     stream_entry* e = t.find_or_create(n, stream_name_hash(n), 1).entry;
-    for (int i = 0; i < 30; ++i) (void)e->monitor.push(std::vector<double>{double(i % 3)});
+    for (int i = 0; i < 30; ++i)
+      (void)e->monitor.push(std::vector<double>{double(i % 3)});
     entries.push_back(e);
   }
   evaluator ev(1, {});
-  for (stream_entry* e : entries) ev.schedule(*e);
+  for (stream_entry* e : entries)
+    ev.schedule(*e);
   ev.stop(false);
   CHECK(ev.completed() + ev.dropped_at_stop() == 50);
-  for (stream_entry* e : entries) CHECK(e->state.load() == eval_state::idle);
+  for (stream_entry* e : entries)
+    CHECK(e->state.load() == eval_state::idle);
 }
