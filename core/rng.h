@@ -13,6 +13,18 @@
 // vector extensions, compiled for AVX2 when the CPU has it) and a scalar
 // fallback that yields exactly the same numbers (tests check this).
 //
+// Kernels. The block fill and the bulk bounded draws (bounded_fill,
+// bounded_descending) have two implementations each: an AVX2 one, in which
+// whole blocks are generated and turned into bounded values in registers
+// (Lemire's multiply fused into the fill), and a generic one (the vector fill
+// built for the baseline instruction set, then one multiply per value). Both
+// give exactly the numbers of successive bounded() calls, and a block in which
+// Lemire's method might reject a draw is redone one bounded() at a time, so
+// every result is the same function of the stream. The AVX2 kernels run when
+// the CPU has AVX2; use_kernel() selects one per generator, so that tests can
+// compare them (engines with vector loops of their own, such as the
+// bootstrap's sums, follow the same choice through kernel_in_use()).
+//
 // Derived draws.
 //   next_u64()      uniform on [0, 2^64).
 //   next_u32()      uniform on [0, 2^32): the low half of a 64-bit output, then
@@ -77,6 +89,11 @@ class rng {
   static constexpr std::size_t lanes = 4;
   static constexpr std::size_t block = 64;  // 64-bit values per refill
 
+  // Implementation of the block kernels (see "Kernels" above). automatic is
+  // avx2 when the CPU has AVX2, else generic; avx2 on a CPU without AVX2 runs
+  // generic. The choice changes the speed only, never a number.
+  enum class kernel { automatic, avx2, generic };
+
   // Complete generator state, for snapshots: restoring it continues the
   // stream exactly where it was.
   struct state_type {
@@ -131,6 +148,12 @@ class rng {
   // REQUIRES: range >= 1.
   void bounded_fill(uint32_t* out, uint32_t range, uint32_t count);
 
+  // Selects the kernel implementation for this generator (the default is
+  // automatic). It is not part of state(): a restored generator keeps its own.
+  void use_kernel(kernel k);
+  // The implementation that runs: avx2 or generic, never automatic.
+  kernel kernel_in_use() const { return avx2_ ? kernel::avx2 : kernel::generic; }
+
   state_type state() const;
   void restore(const state_type& s);
 
@@ -141,13 +164,21 @@ class rng {
                           std::size_t n);
   static void fill_vector(std::array<std::array<uint64_t, 4>, lanes>& lane, uint64_t* out,
                           std::size_t n);
+  // The vector fill with a chosen kernel (fill_vector uses kernel::automatic).
+  static void fill_with(kernel k, std::array<std::array<uint64_t, 4>, lanes>& lane, uint64_t* out,
+                        std::size_t n);
   // True when fill_vector runs the AVX2 path on this CPU.
   static bool vector_path_is_avx2();
 
  private:
   void refill();
-  // Shared body of bounded_descending (step 1) and bounded_fill (step 0).
+  // Shared body of bounded_descending (step 1) and bounded_fill (step 0):
+  // out[i] = bounded(range0 - step * i).
   void bounded_run(uint32_t* out, uint32_t range0, uint32_t step, uint32_t count);
+  // The same from the unread part of the current block only: returns how many
+  // values it wrote, min(count, 64-bit values left * 2).
+  // REQUIRES: half_ == 0 and pos_ < block.
+  uint32_t bounded_from_buffer(uint32_t* out, uint32_t range0, uint32_t step, uint32_t count);
 
   // Generator state in vector layout: words_[4 * w + j] is word w of lane j
   // (transposed from state_type::lane, so a refill needs no shuffling).
@@ -155,6 +186,7 @@ class rng {
   alignas(64) std::array<uint64_t, block> buf_;
   uint32_t pos_ = block;
   uint32_t half_ = 0;
+  bool avx2_ = false;  // the kernel in use (see use_kernel)
 };
 
 }  // namespace plumbline

@@ -55,9 +55,12 @@ constexpr std::array<uint64_t, 10> xoshiro256pp_1234 = {41943041ULL,
 
 // The draws of the Python protocol (see rng_reference.py), run on rng. With
 // `batched`, runs of bounded() go through bounded_fill and bounded_descending
-// instead of one call per draw.
-std::vector<std::vector<uint64_t>> run_ops(uint64_t seed, const json& ops, bool batched) {
+// instead of one call per draw, on the generator kernel `k` (core/rng.h,
+// "Kernels").
+std::vector<std::vector<uint64_t>> run_ops(uint64_t seed, const json& ops, bool batched,
+                                           rng::kernel k = rng::kernel::automatic) {
   rng g(seed);
+  g.use_kernel(k);
   std::vector<std::vector<uint64_t>> out;
   for (const json& op : ops) {
     const std::string kind = op[0].get<std::string>();
@@ -143,20 +146,25 @@ TEST_CASE("xoshiro256++ reproduces the published outputs from the state {1, 2, 3
   for (const uint64_t expected : xoshiro256pp_1234)
     REQUIRE(g.next() == expected);
 
-  // Both block fills, with every lane in that state, give each published
-  // output four times in a row.
+  // Every block fill (scalar, the automatic vector kernel and the generic
+  // one), with every lane in that state, gives each published output four
+  // times in a row.
   std::array<std::array<uint64_t, 4>, rng::lanes> scalar_lanes;
   scalar_lanes.fill(xoshiro_state_1234);
   auto vector_lanes = scalar_lanes;
+  auto generic_lanes = scalar_lanes;
   std::array<uint64_t, 4 * xoshiro256pp_1234.size()> from_scalar{};
   std::array<uint64_t, 4 * xoshiro256pp_1234.size()> from_vector{};
+  std::array<uint64_t, 4 * xoshiro256pp_1234.size()> from_generic{};
   rng::fill_scalar(scalar_lanes, from_scalar.data(), from_scalar.size());
   rng::fill_vector(vector_lanes, from_vector.data(), from_vector.size());
+  rng::fill_with(rng::kernel::generic, generic_lanes, from_generic.data(), from_generic.size());
   INFO("fill_vector runs the AVX2 path on this CPU: " << rng::vector_path_is_avx2());
   for (std::size_t i = 0; i < from_scalar.size(); ++i) {
     INFO("output " << i);
     REQUIRE(from_scalar[i] == xoshiro256pp_1234[i / 4]);
     REQUIRE(from_vector[i] == xoshiro256pp_1234[i / 4]);
+    REQUIRE(from_generic[i] == xoshiro256pp_1234[i / 4]);
   }
 }
 
@@ -216,9 +224,19 @@ TEST_CASE("rng matches the independent Python implementation for 1000 draws of e
     const json& ops = streams[i].at("ops");
     INFO("seed " << seed << ", ops " << ops.dump().substr(0, 60));
     const auto want = expected.at(i).get<std::vector<std::vector<uint64_t>>>();
-    for (const bool batched : {false, true}) {
-      INFO((batched ? "bounded_fill / bounded_descending" : "one bounded() per draw"));
-      const auto got = run_ops(seed, ops, batched);
+    struct variant {
+      bool batched;
+      rng::kernel kernel;
+      const char* what;
+    };
+    const variant variants[] = {
+        {false, rng::kernel::automatic, "one bounded() per draw"},
+        {true, rng::kernel::generic, "bounded_fill / bounded_descending, generic kernel"},
+        {true, rng::kernel::avx2,
+         "bounded_fill / bounded_descending, AVX2 kernel if the CPU has it"}};
+    for (const variant& v : variants) {
+      INFO(v.what);
+      const auto got = run_ops(seed, ops, v.batched, v.kernel);
       REQUIRE(got.size() == want.size());
       for (std::size_t k = 0; k < got.size(); ++k) {
         INFO("op " << k);

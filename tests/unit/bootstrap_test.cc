@@ -20,6 +20,7 @@
 #include <limits>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 #include "core/dependence.h"
@@ -650,6 +651,44 @@ TEST_CASE("Automatic block length is 1 for independent data and Politis-White fo
     CHECK(r.reference_dependence.dependent);
     CHECK(r.recent_dependence.dependent);
     CHECK(r.reference_dependence.lag1 == dax.lag1);
+  }
+}
+
+TEST_CASE("Every generator kernel gives the same bootstrap results bit for bit",
+          "[core][bootstrap]") {
+  // core/rng.h, "Kernels": rng::use_kernel switches the bulk draws between
+  // the AVX2 and the generic code; results and the generator's final state
+  // must not depend on it. Window sizes below, at and above one block of 128
+  // draws, every quantity, independent and both block schemes.
+  if (!rng::vector_path_is_avx2()) WARN("no AVX2 on this CPU: both runs use the generic kernel");
+  rng data(6262);
+  const std::pair<std::size_t, std::size_t> sizes[] = {{9, 7}, {128, 130}, {301, 257}};
+  for (const auto& [n, m] : sizes) {
+    const auto x = normal_sample(data, n, 10, 1), y = normal_sample(data, m, 10.2, 1.1);
+    for (drift_quantity q : all_quantities) {
+      for (const uint32_t block : {1u, 3u}) {
+        for (const block_scheme scheme : {block_scheme::circular, block_scheme::stationary}) {
+          if (block == 1 && scheme == block_scheme::stationary) continue;
+          INFO("n = " << n << ", m = " << m << ", " << plumbline::quantity_name(q) << ", block "
+                      << block << ", " << plumbline::scheme_name(scheme));
+          interval_options o = make_options(q, interval_method::bca, 257, block);
+          o.scheme = scheme;
+          std::vector<interval_result> results;
+          std::vector<rng::state_type> states;
+          for (const rng::kernel k : {rng::kernel::generic, rng::kernel::avx2}) {
+            bootstrap_engine engine;
+            rng gen(4242);
+            gen.use_kernel(k);
+            auto r = engine.run(x, y, o, gen);
+            REQUIRE(r.ok());
+            results.push_back(r.value());
+            states.push_back(gen.state());
+          }
+          CHECK(same_result(results[0], results[1]));
+          CHECK(states[0] == states[1]);
+        }
+      }
+    }
   }
 }
 

@@ -2,7 +2,9 @@
 //
 // These checks hold the pieces of `rng` to the stream that core/rng.h defines
 // (four splitmix64-seeded xoshiro256++ lanes, interleaved), and to each other
-// (vector fill against scalar fill, snapshots against uninterrupted runs).
+// (each vector kernel's fill against the scalar fill, bulk bounded draws of
+// each kernel against successive bounded() calls, snapshots against
+// uninterrupted runs).
 // Comparisons with an independent implementation, published test vectors and
 // the statistical uniformity checks are in tests/reference/rng_reference_test.cc.
 #include "core/rng.h"
@@ -68,11 +70,33 @@ std::vector<uint64_t> mixed_draws(rng& g, int rounds) {
 
 constexpr uint64_t seeds[] = {0, 1, 7, 20261201, 0x9e3779b97f4a7c15ULL, ~0ULL};
 
+// The kernels this CPU can run (core/rng.h, "Kernels"): generic always, AVX2
+// when the CPU has it.
+std::vector<rng::kernel> runnable_kernels() {
+  std::vector<rng::kernel> k = {rng::kernel::generic};
+  if (rng::vector_path_is_avx2()) k.push_back(rng::kernel::avx2);
+  return k;
+}
+
+const char* kernel_name(rng::kernel k) {
+  return k == rng::kernel::avx2 ? "avx2" : k == rng::kernel::generic ? "generic" : "automatic";
+}
+
+// A generator whose bulk draws run on kernel k.
+rng on_kernel(uint64_t seed, rng::kernel k) {
+  rng g(seed);
+  g.use_kernel(k);
+  return g;
+}
+
 }  // namespace
 
-TEST_CASE("fill_vector writes exactly the numbers of fill_scalar for any lane state and size",
+TEST_CASE("each vector fill writes exactly the numbers of fill_scalar for any lane state and size",
           "[core][rng]") {
   INFO("fill_vector runs the AVX2 path on this CPU: " << rng::vector_path_is_avx2());
+  // On a CPU without AVX2 only the generic kernel can run; say so rather
+  // than pass silently.
+  if (!rng::vector_path_is_avx2()) WARN("no AVX2 on this CPU: the AVX2 fill is not checked");
   // Lane states: random words from splitmix64, plus hand-made extremes (all
   // bits set, single bits at the ends of the words) where carries and
   // rotations are easiest to get wrong.
@@ -106,6 +130,14 @@ TEST_CASE("fill_vector writes exactly the numbers of fill_scalar for any lane st
       REQUIRE(out_vector == out_scalar);
       REQUIRE(out_vector[n] == 0xdeadbeefULL);
       REQUIRE(b == a);  // both leave the lanes n / 4 steps on
+      for (const rng::kernel k : runnable_kernels()) {
+        INFO("fill_with, kernel " << kernel_name(k));
+        lane_states c = states[t];
+        std::vector<uint64_t> out_kernel(n + 1, 0xdeadbeefULL);
+        rng::fill_with(k, c, out_kernel.data(), n);
+        REQUIRE(out_kernel == out_scalar);
+        REQUIRE(c == a);
+      }
     }
   }
 }
@@ -322,24 +354,29 @@ TEST_CASE("bounded_fill returns exactly what successive bounded() calls return",
   // one-at-a-time fallback are taken.
   const uint32_t ranges[] = {1u,       2u,         3u, 10u, 1000u, 1000003u, (1u << 31) + 1u,
                              3u << 30, 0xffffffffu};
-  const uint32_t counts[] = {0u, 1u, 2u, 3u, 127u, 128u, 129u, 1000u};
-  for (const uint64_t seed : {uint64_t{5}, uint64_t{20261201}}) {
-    for (const uint32_t r : ranges) {
-      for (const uint32_t count : counts) {
-        for (int start = 0; start < 4; ++start) {
-          INFO("seed " << seed << ", r = " << r << ", count " << count << ", start " << start);
-          rng batched(seed);
-          rng single(seed);
-          advance_to_start(batched, start);
-          advance_to_start(single, start);
-          std::vector<uint32_t> got(count + 1, 0xabababab);
-          batched.bounded_fill(got.data(), r, count);
-          std::vector<uint32_t> want(count + 1, 0xabababab);
-          for (uint32_t i = 0; i < count; ++i)
-            want[i] = single.bounded(r);
-          REQUIRE(got == want);  // the spare last slot stays untouched
-          REQUIRE(batched.state() == single.state());
-          REQUIRE(mixed_draws(batched, 20) == mixed_draws(single, 20));
+  // Counts below, at and above one block's 128 32-bit values, and several
+  // blocks (the whole-block path of the kernels).
+  const uint32_t counts[] = {0u, 1u, 2u, 3u, 127u, 128u, 129u, 255u, 256u, 257u, 1000u};
+  for (const rng::kernel k : runnable_kernels()) {
+    for (const uint64_t seed : {uint64_t{5}, uint64_t{20261201}}) {
+      for (const uint32_t r : ranges) {
+        for (const uint32_t count : counts) {
+          for (int start = 0; start < 4; ++start) {
+            INFO("kernel " << kernel_name(k) << ", seed " << seed << ", r = " << r << ", count "
+                           << count << ", start " << start);
+            rng batched = on_kernel(seed, k);
+            rng single(seed);
+            advance_to_start(batched, start);
+            advance_to_start(single, start);
+            std::vector<uint32_t> got(count + 1, 0xabababab);
+            batched.bounded_fill(got.data(), r, count);
+            std::vector<uint32_t> want(count + 1, 0xabababab);
+            for (uint32_t i = 0; i < count; ++i)
+              want[i] = single.bounded(r);
+            REQUIRE(got == want);  // the spare last slot stays untouched
+            REQUIRE(batched.state() == single.state());
+            REQUIRE(mixed_draws(batched, 20) == mixed_draws(single, 20));
+          }
         }
       }
     }
@@ -358,28 +395,159 @@ TEST_CASE("bounded_descending returns exactly bounded(n), bounded(n - 1), ... in
                       {10, 10},
                       {1000, 137},
                       {1000, 1000},
+                      {1000, 500},
                       {100000, 300},
+                      {100000, 2000},
                       {(1u << 31) + 1u, 500},
                       {0xffffffffu, 300}};
-  for (const uint64_t seed : {uint64_t{6}, uint64_t{20261201}}) {
-    for (const run& rn : runs) {
-      for (int start = 0; start < 4; ++start) {
-        INFO("seed " << seed << ", n = " << rn.n << ", k = " << rn.k << ", start " << start);
-        rng batched(seed);
-        rng single(seed);
-        advance_to_start(batched, start);
-        advance_to_start(single, start);
-        std::vector<uint32_t> got(rn.k + 1, 0xabababab);
-        batched.bounded_descending(got.data(), rn.n, rn.k);
-        std::vector<uint32_t> want(rn.k + 1, 0xabababab);
-        for (uint32_t i = 0; i < rn.k; ++i)
-          want[i] = single.bounded(rn.n - i);
-        REQUIRE(got == want);
-        REQUIRE(batched.state() == single.state());
-        REQUIRE(mixed_draws(batched, 20) == mixed_draws(single, 20));
+  for (const rng::kernel kern : runnable_kernels()) {
+    for (const uint64_t seed : {uint64_t{6}, uint64_t{20261201}}) {
+      for (const run& rn : runs) {
+        for (int start = 0; start < 4; ++start) {
+          INFO("kernel " << kernel_name(kern) << ", seed " << seed << ", n = " << rn.n
+                         << ", k = " << rn.k << ", start " << start);
+          rng batched = on_kernel(seed, kern);
+          rng single(seed);
+          advance_to_start(batched, start);
+          advance_to_start(single, start);
+          std::vector<uint32_t> got(rn.k + 1, 0xabababab);
+          batched.bounded_descending(got.data(), rn.n, rn.k);
+          std::vector<uint32_t> want(rn.k + 1, 0xabababab);
+          for (uint32_t i = 0; i < rn.k; ++i)
+            want[i] = single.bounded(rn.n - i);
+          REQUIRE(got == want);
+          REQUIRE(batched.state() == single.state());
+          REQUIRE(mixed_draws(batched, 20) == mixed_draws(single, 20));
+        }
       }
     }
   }
+}
+
+TEST_CASE("bulk draws stay exact when a rejection is possible in some blocks and not in others",
+          "[core][rng]") {
+  // r = 2^24: Lemire's threshold 2^32 mod r is 0, so no draw is ever rejected
+  // and the stream stays aligned to blocks of 128 32-bit values; but a low
+  // word x * r mod 2^32 below r (x mod 2^8 == 0, probability 1/256) makes a
+  // rejection look possible, and its block is redone one bounded() at a time.
+  // A twin's stream shows that both kinds of block occur among the 64 drawn.
+  constexpr uint32_t r = 1u << 24;
+  constexpr uint32_t blocks = 64, count = blocks * 2 * rng::block;
+  for (const rng::kernel k : runnable_kernels()) {
+    INFO("kernel " << kernel_name(k));
+    rng twin(41);
+    uint32_t slow_blocks = 0;
+    for (uint32_t b = 0; b < blocks; ++b) {
+      bool slow = false;
+      for (std::size_t i = 0; i < 2 * rng::block; ++i)
+        slow |= (twin.next_u32() & 0xffu) == 0;
+      slow_blocks += slow ? 1 : 0;
+    }
+    INFO("blocks on the exact path: " << slow_blocks << " of " << blocks);
+    REQUIRE(slow_blocks > 0);
+    REQUIRE(slow_blocks < blocks);
+    rng batched = on_kernel(41, k);
+    rng single(41);
+    std::vector<uint32_t> got(count), want(count);
+    batched.bounded_fill(got.data(), r, count);
+    for (uint32_t i = 0; i < count; ++i)
+      want[i] = single.bounded(r);
+    REQUIRE(got == want);
+    REQUIRE(batched.state() == single.state());
+    REQUIRE(batched.state() == twin.state());  // no draw was rejected
+
+    // r = 2^24 + 1 rejects for real (threshold 2^24 - 255, so with
+    // probability about 1/256 per draw), which shifts every later block;
+    // likewise a descending run from there.
+    rng batched2 = on_kernel(43, k);
+    rng single2(43);
+    batched2.bounded_fill(got.data(), r + 1, count);
+    for (uint32_t i = 0; i < count; ++i)
+      want[i] = single2.bounded(r + 1);
+    REQUIRE(got == want);
+    batched2.bounded_descending(got.data(), r + 9000, count);
+    for (uint32_t i = 0; i < count; ++i)
+      want[i] = single2.bounded(r + 9000 - i);
+    REQUIRE(got == want);
+    REQUIRE(batched2.state() == single2.state());
+  }
+}
+
+TEST_CASE("every kernel gives the same stream through a long mixed run of bulk and single draws",
+          "[core][rng]") {
+  // Random operations, sizes and ranges, drawn from a separate generator:
+  // bulk draws of 0 to 700 values (less than, about and several blocks),
+  // single bounded(), next_u32 and next_u64 between them, so every bulk
+  // draw starts at some block position with or without a pending half. The
+  // reference replays each bulk draw as successive bounded() calls.
+  rng plan(2718);
+  struct op {
+    uint32_t kind, range, count;
+  };
+  std::vector<op> ops;
+  for (int i = 0; i < 600; ++i) {
+    const uint32_t kind = plan.bounded(5);
+    const uint32_t range =
+        plan.bounded(3) == 0 ? 0xfffffff0u - plan.bounded(1000) : 1 + plan.bounded(100000);
+    ops.push_back({kind, range, plan.bounded(701)});
+  }
+  auto run = [&](rng& g, bool bulk) {
+    std::vector<uint64_t> out;
+    std::vector<uint32_t> buf(701);
+    for (const op& o : ops) {
+      switch (o.kind) {
+        case 0:
+        case 1: {
+          const uint32_t n = o.kind == 1 ? std::max(o.range, o.count) : o.range;
+          const uint32_t step = o.kind == 1 ? 1 : 0;
+          if (bulk) {
+            if (step == 0)
+              g.bounded_fill(buf.data(), n, o.count);
+            else
+              g.bounded_descending(buf.data(), n, o.count);
+          } else {
+            for (uint32_t i = 0; i < o.count; ++i)
+              buf[i] = g.bounded(n - step * i);
+          }
+          out.insert(out.end(), buf.begin(), buf.begin() + o.count);
+          break;
+        }
+        case 2:
+          out.push_back(g.bounded(o.range));
+          break;
+        case 3:
+          out.push_back(g.next_u32());
+          break;
+        default:
+          out.push_back(g.next_u64());
+          break;
+      }
+    }
+    return out;
+  };
+  rng reference(99);
+  const auto want = run(reference, false);
+  for (const rng::kernel k : runnable_kernels()) {
+    INFO("kernel " << kernel_name(k));
+    rng g = on_kernel(99, k);
+    REQUIRE(run(g, true) == want);
+    REQUIRE(g.state() == reference.state());
+  }
+}
+
+TEST_CASE("use_kernel selects the generic kernel, and AVX2 exactly when the CPU has it",
+          "[core][rng]") {
+  rng g(1);
+  CHECK(g.kernel_in_use() ==
+        (rng::vector_path_is_avx2() ? rng::kernel::avx2 : rng::kernel::generic));
+  g.use_kernel(rng::kernel::generic);
+  CHECK(g.kernel_in_use() == rng::kernel::generic);
+  g.use_kernel(rng::kernel::avx2);
+  CHECK(g.kernel_in_use() ==
+        (rng::vector_path_is_avx2() ? rng::kernel::avx2 : rng::kernel::generic));
+  g.use_kernel(rng::kernel::automatic);
+  CHECK(g.kernel_in_use() ==
+        (rng::vector_path_is_avx2() ? rng::kernel::avx2 : rng::kernel::generic));
 }
 
 TEST_CASE("next_double lies in the unit interval on the grid k / 2^53 from the top 53 bits",
