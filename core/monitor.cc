@@ -38,6 +38,8 @@ std::string samples_text(std::size_t n) {
   return std::to_string(n) + (n == 1 ? " sample" : " samples");
 }
 
+}  // namespace
+
 std::string_view policy_name(reference_policy p) {
   switch (p) {
     case reference_policy::baseline:
@@ -47,10 +49,8 @@ std::string_view policy_name(reference_policy p) {
     case reference_policy::file:
       return "file";
   }
-  return "unknown";
+  return "baseline";
 }
-
-}  // namespace
 
 uint64_t fnv1a64(std::string_view text) {
   uint64_t h = 0xcbf29ce484222325ULL;

@@ -13,6 +13,7 @@
 #include <cstdint>
 #include <optional>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "core/bootstrap.h"
@@ -30,6 +31,9 @@ namespace plumbline {
 //   file      loaded from a CSV file at start, frozen; every sample goes to
 //             the recent window.
 enum class reference_policy { baseline, lagged, file };
+
+// "baseline", "lagged", "file" (the configuration's words).
+std::string_view policy_name(reference_policy p);
 
 // The alarm rule (alarm.h). A "signal" is an evaluation with p < alpha and,
 // when a practical tolerance d is set, a drift interval wholly outside

@@ -41,18 +41,6 @@ http::response json_error(unsigned status, const std::string& message) {
   return json_response(status, json{{"error", message}});
 }
 
-std::string_view policy_name(reference_policy p) {
-  switch (p) {
-    case reference_policy::baseline:
-      return "baseline";
-    case reference_policy::lagged:
-      return "lagged";
-    case reference_policy::file:
-      return "file";
-  }
-  return "baseline";
-}
-
 // Constant-time comparison, so the token cannot be guessed byte by byte from
 // response times.
 bool same_secret(std::string_view a, std::string_view b) {
