@@ -21,6 +21,7 @@
 #include <cstdint>
 #include <functional>
 #include <string>
+#include <vector>
 
 #include "core/status.h"
 
@@ -37,6 +38,7 @@ struct load_options {
   std::string prefix = "load.s";    // stream names: prefix + index
   uint32_t dimension = 1;           // values per record, 1 .. 64
   uint64_t buffer_records = 1 << 20;  // records rendered per connection, >= streams/connections
+  double rate = 0;  // records per second, all connections together; 0 = as fast as accepted
 };
 
 struct load_progress {
@@ -50,6 +52,17 @@ struct load_report {
   double seconds = 0;  // from the first write to the last
   double records_per_second() const { return seconds > 0 ? records_sent / seconds : 0; }
 };
+
+// The bytes connection `connection` of run_load(options) sends, round and
+// round: a whole number of rounds over its streams, at least buffer_records
+// records; ends[i] is the offset just past record i's newline. Exposed for
+// the ingest benchmark's in-process baselines, which parse the same bytes.
+// REQUIRES: the options pass run_load's checks; connection < connections.
+struct rendered_records {
+  std::string bytes;
+  std::vector<uint64_t> ends;
+};
+rendered_records render_records(const load_options& options, uint32_t connection);
 
 // Checks the options (a message naming the bad one), connects every
 // connection first (failing before sending anything when one cannot), then

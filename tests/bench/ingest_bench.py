@@ -1,0 +1,276 @@
+#!/usr/bin/python3
+"""The daemon's ingest benchmark: a real `plumbline serve` over loopback TCP.
+
+Three parts, in one run:
+
+  1. In process (plumbline_bench_ingest): the daemon's ingest path without
+     sockets, beside the bare loop (parse, open-addressing map, ring append)
+     and the same loop with std::unordered_map; one thread and two.
+  2. Ingest alone: `plumbline serve` with evaluations off, fed by
+     `plumbline-sim load` over 4 TCP connections with 10,000 streams as fast
+     as it accepts. Reports records/s, checks that every record sent was
+     accepted (plumbline_records_total), and the daemon's resident memory
+     (VmRSS) against the raw window bytes (streams x (reference + recent)
+     x 8 bytes x dimension).
+  3. With evaluations: every stream evaluated every 1,000 samples with the
+     built-in tests (Anderson-Darling, 999 resamples with sequential stopping
+     after 20 exceedances; a 95 % BCa mean-difference interval, 999
+     resamples), the sender paced at --rate records/s. Reports the rate held,
+     evaluations run and coalesced, and the evaluation latency percentiles
+     (request to result, queueing included) from the daemon's histogram
+     plumbline_evaluation_latency_seconds, interpolated within its buckets.
+
+Targets (issue: daemon benchmark, this 2-core machine):
+  ingest alone          >= 8,000,000 records/s, no loss
+  with evaluations      >= 1,000,000 records/s sustained, latency p99 <= 1 s
+  resident memory       <= 1.5 x the raw window bytes
+
+Note that the sender runs on the same two cores as the daemon.
+
+Usage: /usr/bin/python3 tests/bench/ingest_bench.py BUILD_DIR [--quick]
+          [--seconds S] [--rate R] [--streams N]
+"""
+import argparse
+import json
+import os
+import re
+import subprocess
+import sys
+import tempfile
+import time
+import urllib.request
+
+STREAMS = 10_000
+CONNECTIONS = 4
+REFERENCE = 500
+RECENT = 100
+
+
+def config_text(every_samples):
+    # "Evaluations off": the count cadence off and a timer of an hour, which
+    # never fires within the run (a group must have some cadence).
+    every_seconds = 3600 if every_samples == 0 else 0
+    return f"""# ingest benchmark ({'evaluations off' if every_samples == 0 else 'evaluations on'})
+[ingest]
+max_streams = 20000
+
+[evaluation]
+seed = 1
+
+[[group]]
+name = "bench"
+match = "*"
+reference_size = {REFERENCE}
+recent_size = {RECENT}
+every_samples = {every_samples}
+every_seconds = {every_seconds}
+"""
+
+
+class Daemon:
+    def __init__(self, build, config_path, log_path):
+        self.log = open(log_path, "w")
+        self.proc = subprocess.Popen(
+            [os.path.join(build, "daemon", "plumbline"), "serve", "--config", config_path,
+             "--ingest", "127.0.0.1:0", "--http", "127.0.0.1:0", "--log-level", "warn"],
+            stdout=subprocess.PIPE, stderr=self.log, text=True)
+        line = self.proc.stdout.readline()
+        m = re.search(r"ingest_tcp=127\.0\.0\.1:(\d+) .*http=127\.0\.0\.1:(\d+)", line)
+        if not m:
+            self.stop()
+            sys.exit(f"ingest_bench: no ready line from plumbline serve (got {line!r})")
+        self.ingest_port, self.http_port = int(m.group(1)), int(m.group(2))
+
+    def metrics(self):
+        with urllib.request.urlopen(f"http://127.0.0.1:{self.http_port}/metrics",
+                                    timeout=30) as r:
+            return r.read().decode()
+
+    def value(self, text, name):
+        m = re.search(rf"^{name} ([0-9.e+-]+)$", text, re.M)
+        return float(m.group(1)) if m else 0.0
+
+    def histogram(self, text, name):
+        """{le: cumulative count} of an unlabelled histogram."""
+        out = {}
+        for m in re.finditer(rf'^{name}_bucket{{le="([^"]+)"}} ([0-9.e+-]+)$', text, re.M):
+            out[float("inf") if m.group(1) == "+Inf" else float(m.group(1))] = float(m.group(2))
+        return out
+
+    def rss_bytes(self):
+        with open(f"/proc/{self.proc.pid}/status") as f:
+            for line in f:
+                if line.startswith("VmRSS:"):
+                    return int(line.split()[1]) * 1024
+        return 0
+
+    def wait_records(self, expected, timeout=60):
+        """Waits until plumbline_records_total reaches `expected` or stops growing."""
+        deadline = time.monotonic() + timeout
+        last, still = -1.0, 0
+        while time.monotonic() < deadline:
+            n = self.value(self.metrics(), "plumbline_records_total")
+            if n >= expected:
+                return n
+            still = still + 1 if n == last else 0
+            if still >= 10:
+                return n
+            last = n
+            time.sleep(0.2)
+        return last
+
+    def stop(self):
+        if self.proc.poll() is None:
+            self.proc.terminate()
+            try:
+                self.proc.wait(timeout=30)
+            except subprocess.TimeoutExpired:
+                self.proc.kill()
+                self.proc.wait()
+        self.log.close()
+
+
+def run_load(build, port, streams, seconds=None, records=None, rate=0):
+    cmd = [os.path.join(build, "simulator", "plumbline-sim"), "load",
+           "--to", f"127.0.0.1:{port}", "--streams", str(streams),
+           "--connections", str(CONNECTIONS), "--json"]
+    if seconds is not None:
+        cmd += ["--duration", str(seconds)]
+    if records is not None:
+        cmd += ["--records", str(records), "--duration", "600"]
+    if rate:
+        cmd += ["--rate", str(rate)]
+    out = subprocess.run(cmd, check=True, capture_output=True, text=True).stdout
+    return json.loads(out)
+
+
+def percentile(before, after, q):
+    """q-quantile of the observations between two scrapes of a histogram,
+    linear within its bucket (as PromQL's histogram_quantile does)."""
+    les = sorted(after)
+    counts = [after[le] - before.get(le, 0.0) for le in les]
+    total = counts[-1]
+    if total <= 0:
+        return float("nan"), 0
+    rank = q * total
+    lower_le, lower_count = 0.0, 0.0
+    for le, c in zip(les, counts):
+        if c >= rank:
+            if le == float("inf"):
+                return lower_le, total  # beyond the last finite bucket: report its bound
+            return lower_le + (le - lower_le) * (rank - lower_count) / max(c - lower_count, 1e-12), total
+        lower_le, lower_count = le, c
+    return float("nan"), total
+
+
+def share_within(before, after, bound):
+    les = sorted(after)
+    total = after[les[-1]] - before.get(les[-1], 0.0)
+    return (after[bound] - before.get(bound, 0.0)) / total if total else float("nan")
+
+
+def loadavg():
+    with open("/proc/loadavg") as f:
+        return f.read().split()[0]
+
+
+def main():
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("build")
+    ap.add_argument("--quick", action="store_true", help="short runs (noisy; not for figures)")
+    ap.add_argument("--seconds", type=float, default=None, help="length of each timed run")
+    ap.add_argument("--rate", type=float, default=1_000_000,
+                    help="paced rate of the run with evaluations, records/s")
+    ap.add_argument("--streams", type=int, default=STREAMS)
+    ap.add_argument("--no-in-process", action="store_true",
+                    help="leave out part 1 (the in-process baselines)")
+    args = ap.parse_args()
+    seconds = args.seconds or (3 if args.quick else 10)
+    streams = args.streams
+    print(f"load average before: {loadavg()}")
+
+    # 1. In process.
+    if not args.no_in_process:
+        out = subprocess.run([os.path.join(args.build, "tests", "bench",
+                                           "plumbline_bench_ingest"),
+                              "--streams", str(streams), "--rounds", "3" if args.quick else "5"],
+                             check=True, capture_output=True, text=True).stdout
+        print(out, end="", flush=True)
+
+    raw_window_bytes = streams * (REFERENCE + RECENT) * 8
+    fill = streams * (REFERENCE + RECENT + 100)  # every window full, before timing
+    results = {}
+    with tempfile.TemporaryDirectory() as tmp:
+        # 2. Ingest alone.
+        cfg = os.path.join(tmp, "off.toml")
+        with open(cfg, "w") as f:
+            f.write(config_text(0))
+        d = Daemon(args.build, cfg, os.path.join(tmp, "off.log"))
+        try:
+            warm = run_load(args.build, d.ingest_port, streams, records=fill)
+            d.wait_records(warm["records_sent"])
+            r = run_load(args.build, d.ingest_port, streams, seconds=seconds)
+            expected = warm["records_sent"] + r["records_sent"]
+            got = d.wait_records(expected)
+            rate = r["records_sent"] / r["seconds"]
+            rss = d.rss_bytes()
+            text = d.metrics()
+            rejected = sum(float(m.group(1)) for m in re.finditer(
+                r'^plumbline_lines_rejected_total{[^}]*} ([0-9.e+-]+)$', text, re.M))
+            results["alone"] = dict(rate=rate, sent=expected, accepted=got, rss=rss,
+                                    rejected=rejected)
+        finally:
+            d.stop()
+        print(f"\ningest alone: {streams} streams, {CONNECTIONS} connections, {seconds:g} s")
+        print(f"  {rate / 1e6:.2f} M records/s (target >= 8.00)  ratio {rate / 8e6:.2f}")
+        print(f"  sent {expected:.0f}, accepted {got:.0f}, rejected {rejected:.0f}"
+              f"  ({'no loss' if got == expected and rejected == 0 else 'LOSS'})")
+        print(f"  resident memory {rss / 2**20:.1f} MiB; raw window bytes "
+              f"{raw_window_bytes / 2**20:.1f} MiB; ratio {rss / raw_window_bytes:.2f}"
+              f" (target <= 1.50)")
+
+        # 3. With evaluations, paced.
+        cfg = os.path.join(tmp, "on.toml")
+        with open(cfg, "w") as f:
+            f.write(config_text(1000))
+        d = Daemon(args.build, cfg, os.path.join(tmp, "on.log"))
+        try:
+            warm = run_load(args.build, d.ingest_port, streams, records=fill)
+            d.wait_records(warm["records_sent"])
+            time.sleep(2)  # let the first evaluations (windows just full) finish
+            t0 = d.metrics()
+            h0 = d.histogram(t0, "plumbline_evaluation_latency_seconds")
+            c0 = d.value(t0, "plumbline_evaluations_coalesced_total")
+            n0 = d.value(t0, "plumbline_evaluation_latency_seconds_count")
+            r = run_load(args.build, d.ingest_port, streams, seconds=seconds * 2,
+                         rate=args.rate)
+            expected = warm["records_sent"] + r["records_sent"]
+            got = d.wait_records(expected)
+            time.sleep(1)
+            t1 = d.metrics()
+            h1 = d.histogram(t1, "plumbline_evaluation_latency_seconds")
+            c1 = d.value(t1, "plumbline_evaluations_coalesced_total")
+            n1 = d.value(t1, "plumbline_evaluation_latency_seconds_count")
+            rss_on = d.rss_bytes()
+        finally:
+            d.stop()
+        rate_on = r["records_sent"] / r["seconds"]
+        p50, evals = percentile(h0, h1, 0.50)
+        p90, _ = percentile(h0, h1, 0.90)
+        p99, _ = percentile(h0, h1, 0.99)
+        within_1s = share_within(h0, h1, 1.0)
+        print(f"\nwith evaluations every 1000 samples, paced at {args.rate / 1e6:.2f} M records/s,"
+              f" {2 * seconds:g} s")
+        print(f"  {rate_on / 1e6:.2f} M records/s held (target >= 1.00); sent {expected:.0f},"
+              f" accepted {got:.0f} ({'no loss' if got == expected else 'LOSS'})")
+        print(f"  evaluations {n1 - n0:.0f} ({(n1 - n0) / (2 * seconds):.0f}/s),"
+              f" coalesced {c1 - c0:.0f}")
+        print(f"  latency p50 {p50 * 1e3:.1f} ms, p90 {p90 * 1e3:.1f} ms, p99 {p99 * 1e3:.1f} ms"
+              f" (target p99 <= 1000 ms); share within 1 s: {within_1s:.4f}")
+        print(f"  resident memory {rss_on / 2**20:.1f} MiB; ratio to raw window bytes"
+              f" {rss_on / raw_window_bytes:.2f}")
+    print(f"\nload average after: {loadavg()}")
+
+
+if __name__ == "__main__":
+    main()
