@@ -1,19 +1,25 @@
 #!/usr/bin/env bash
 # deploy/setup.sh: install, build, test and demonstrate plumbline on Debian 12.
 #
-# Usage: bash deploy/setup.sh deps|build|demo|test|sanitize
+# Usage: bash deploy/setup.sh deps|build|demo|test|sanitize|tsan|install
 #
 #   deps      install the Debian packages the build and the tests need
 #             (skipped when all of them are installed already)
 #   build     deps, then a RelWithDebInfo build in build/
 #   demo      build, then compare the demo data in simulator/examples/, then
 #             run `plumbline serve` briefly and feed it the same data live
-#   test      build, then run every test suite with ctest
+#   test      build, then run every test suite with ctest (unit, reference,
+#             calibration, cli, integration, deploy and e2e)
 #   sanitize  deps, then an AddressSanitizer + UndefinedBehaviorSanitizer
 #             build in build-asan/ and the unit suite under it
 #   tsan      deps, then a ThreadSanitizer build in build-tsan/ and the
 #             daemon's tests under it (the integration suite, which runs the
 #             instrumented `plumbline serve`, and the daemon's unit cases)
+#   install   build for the install prefix $PLUMBLINE_PREFIX (default
+#             /usr/local), then `cmake --install build`: the binary, the
+#             configuration (kept if present), the systemd unit and the
+#             Prometheus files; then `systemctl daemon-reload` when systemd
+#             runs. Starts nothing: it prints the command that does.
 #
 # Runs as root on a fresh Debian 12 machine, asks nothing, and can be run
 # again at any time: each step only does what is still missing. Works from
@@ -27,8 +33,8 @@ packages=(
   build-essential cmake g++
   libboost-dev libeigen3-dev prometheus-cpp-dev libtomlplusplus-dev catch2
   libssl-dev libcli11-dev nlohmann-json3-dev
-  python3-scipy python3-numpy
-  prometheus
+  python3-scipy python3-numpy python3-yaml
+  prometheus systemd
   clang-14 libclang-rt-14-dev
 )
 
@@ -53,6 +59,8 @@ commands:
   test      build, then run all test suites (ctest)
   sanitize  deps, then build in build-asan/ with ASan + UBSan and run the unit suite
   tsan      deps, then build in build-tsan/ with ThreadSanitizer and run the daemon's tests
+  install   build, then install under $PLUMBLINE_PREFIX (default /usr/local) with the
+            systemd unit; see README.md, "Running under systemd"
 EOF
 }
 
@@ -253,7 +261,7 @@ print("  %-24s alarm %-5s  evaluations %-3d  %s p = %.4g  drift %s %+.3f g [%+.3
 
 cmd_test() {
   cmd_build
-  say "test: running every suite (unit, reference, calibration, cli)"
+  say "test: running every suite (unit, reference, calibration, cli, integration, deploy, e2e)"
   run ctest --test-dir build --output-on-failure --no-tests=error -j2
   say "test: done"
 }
@@ -293,6 +301,33 @@ cmd_tsan() {
   say "tsan: done"
 }
 
+cmd_install() {
+  local prefix="${PLUMBLINE_PREFIX:-/usr/local}"
+  cmd_deps
+  # The unit names the binary and the configuration by absolute paths, so the
+  # prefix is set when CMake configures (deploy/CMakeLists.txt).
+  say "install: configuring build/ for the install prefix $prefix"
+  run cmake -S . -B build -DCMAKE_BUILD_TYPE=RelWithDebInfo -DCMAKE_INSTALL_PREFIX="$prefix"
+  say "install: compiling plumbline with $(ncpu) jobs"
+  run cmake --build build -j"$(ncpu)" --target plumbline
+  if ((EUID != 0)) && [[ -z "${DESTDIR:-}" ]]; then
+    echo "setup.sh: installing under $prefix needs root; run this as root" >&2
+    exit 1
+  fi
+  run cmake --install build
+  if [[ -z "${DESTDIR:-}" && -d /run/systemd/system ]]; then
+    run systemctl daemon-reload
+  fi
+  local config
+  config="$(sed -n 's/^ExecStart=.* --config //p' build/deploy/plumbline.service)"
+  say "install: done. Configuration: $config; unit: $prefix/lib/systemd/system/plumbline.service"
+  if [[ -n "${DESTDIR:-}" ]]; then
+    say "install: staged under DESTDIR=$DESTDIR; nothing was installed on this machine"
+  else
+    say "install: start it with: systemctl enable --now plumbline; logs: journalctl -u plumbline"
+  fi
+}
+
 main() {
   if (($# != 1)); then
     usage
@@ -305,6 +340,7 @@ main() {
     test) cmd_test ;;
     sanitize) cmd_sanitize ;;
     tsan) cmd_tsan ;;
+    install) cmd_install ;;
     -h | --help | help)
       usage
       exit 0
