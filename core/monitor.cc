@@ -104,6 +104,30 @@ stream_monitor::stream_monitor(const monitor_settings& settings, std::size_t dim
   }
 }
 
+void stream_monitor::prefetch_state() const {
+  __builtin_prefetch(&settings_.policy);
+  __builtin_prefetch(&dim_);
+  __builtin_prefetch(&ref_1_);
+  __builtin_prefetch(&rec_1_);
+  __builtin_prefetch(&samples_total_);
+}
+
+void stream_monitor::prefetch_window() const {
+  if (dim_ != 1) return;
+  switch (settings_.policy) {
+    case reference_policy::baseline:
+      __builtin_prefetch(ref_1_->full() ? rec_1_->next_slot() : ref_1_->next_slot(), 1);
+      break;
+    case reference_policy::lagged:
+      __builtin_prefetch(rec_1_->next_slot(), 1);
+      __builtin_prefetch(ref_1_->next_slot(), 1);
+      break;
+    case reference_policy::file:
+      __builtin_prefetch(rec_1_->next_slot(), 1);
+      break;
+  }
+}
+
 expected<bool> stream_monitor::push(std::span<const double> values) {
   if (values.size() != dim_) {
     ++rejected_total_;

@@ -165,6 +165,15 @@ class stream_monitor {
     return ready() && settings_.every_samples > 0 && since_evaluation_ >= settings_.every_samples;
   }
 
+  // Prefetch hints for push() (a daemon ingesting many streams asks a few
+  // records ahead, so that the cache misses overlap). prefetch_state()
+  // touches nothing: it only names the monitor's own fields push() reads.
+  // prefetch_window() reads those fields (so call it after prefetch_state()
+  // has had time) and names the window slot the next sample goes to. Neither
+  // changes anything or is needed for correctness.
+  void prefetch_state() const;
+  void prefetch_window() const;
+
   // Copies both windows into `in` (see evaluation_input).
   void capture(evaluation_input& in) const;
   // See the header comment. REQUIRES: s validated.

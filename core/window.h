@@ -116,6 +116,12 @@ class sample_window {
   // Total pushes since construction or the last clear().
   uint64_t pushes() const { return pushes_; }
 
+  // The storage slot the next push() writes (for a prefetch hint: the
+  // ingest path asks for it a few records ahead). Never dereferenced here.
+  const double* next_slot() const {
+    return buf_.data() + (size_ == buf_.size() ? head_ : slot(size_));
+  }
+
   // i = 0 is the oldest value, size() - 1 the newest. REQUIRES: i < size().
   double operator[](std::size_t i) const { return buf_[slot(i)]; }
   // REQUIRES: !empty().

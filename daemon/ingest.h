@@ -28,6 +28,7 @@
 #include <mutex>
 #include <optional>
 #include <set>
+#include <span>
 #include <string>
 #include <string_view>
 
@@ -57,6 +58,12 @@ class ingest_sink {
   // One line of the wire format (without its newline). `receipt_time` is the
   // time used for records with an empty TIME field.
   void consume(std::string_view line, double receipt_time);
+  // The same for many lines, in order, with the same effect as consume() on
+  // each: done a group at a time, parsing the group first and then looking
+  // its streams up with prefetches, so that the cache misses of different
+  // streams overlap instead of queueing (ingest.cc). The views must stay
+  // valid for the call only.
+  void consume_lines(std::span<const std::string_view> lines, double receipt_time);
   // One over-long line was dropped.
   void overlong() { reject(wire::reject_reason::line_too_long); }
 
@@ -65,6 +72,10 @@ class ingest_sink {
   }
 
  private:
+  // Appends one parsed record to entry e (or the stream it names, when e is
+  // null); returns whether it was accepted.
+  bool deliver(const wire::record& rec, uint64_t hash, stream_entry* e, double receipt_time);
+
   stream_table& streams_;
   evaluator& eval_;
   ingest_counters& counters_;

@@ -51,12 +51,12 @@ struct stream_entry {
   const uint64_t seed;  // stream_seed(daemon seed, name)
 
   mutable std::mutex mu;
-  // Guarded by mu.
-  stream_monitor monitor;
+  // Guarded by mu. The fields every record updates come first, beside mu.
   uint64_t since_trigger = 0;    // samples since the last count trigger
   bool primed = false;           // the windows were full at some push since start/rebaseline
   double last_sample_time = 0;   // the newest record's time, Unix seconds
   double last_trigger_time = 0;  // receipt clock of the last trigger, Unix seconds
+  stream_monitor monitor;
   uint64_t evaluations = 0;
   double last_evaluation_time = 0;  // Unix seconds; 0 = never
   double last_evaluation_seconds = 0;
@@ -107,6 +107,14 @@ class stream_table {
     const std::size_t n = size();
     for (std::size_t i = 0; i < n; ++i)
       f(*entries_[i].load(std::memory_order_acquire));
+  }
+
+  // Prefetch hints for the ingest path, which looks up a few records ahead
+  // (ingest.cc): the first slot a lookup of `hash` reads, and the entry in
+  // it (possibly another stream's, or none), without reading the entry.
+  void prefetch_slot(uint64_t hash) const { __builtin_prefetch(&slots_[hash & mask_]); }
+  const stream_entry* first_probe(uint64_t hash) const {
+    return slots_[hash & mask_].load(std::memory_order_relaxed);
   }
 
   // The entry by name, hashing it first.

@@ -180,7 +180,7 @@ void send_loop(int fd, const rendered_records& buf, uint64_t quota, double rate,
     const uint64_t limit = pos + slice_bytes;
     while (want_end_record < per_buffer && buf.ends[want_end_record] <= limit) ++want_end_record;
     if (want_end_record == next) want_end_record = next + 1;
-    want_end_record = std::min(want_end_record, next + paced_slice);
+    if (paced_slice < want_end_record - next) want_end_record = next + paced_slice;
     if (quota != 0) want_end_record = std::min(want_end_record, next + (quota - sent_records));
     const uint64_t end = buf.ends[want_end_record - 1];
     while (pos < end) {
