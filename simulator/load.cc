@@ -63,6 +63,48 @@ void append_millis(std::string& out, int64_t millis) {
 
 }  // namespace
 
+namespace {
+
+// One record of stream `index` with values from gen.
+void append_record(std::string& out, const load_options& o, uint64_t index, rng& gen) {
+  out.append(o.prefix);
+  out.append(std::to_string(index));
+  out.append(",,");
+  for (uint32_t d = 0; d < o.dimension; ++d) {
+    if (d != 0) out.push_back(',');
+    double u;
+    do u = gen.next_double();
+    while (u == 0);
+    const double x = 100.0 + normal_quantile(u);
+    append_millis(out, std::llround(x * 1000.0));
+  }
+  out.push_back('\n');
+}
+
+// Connection c's stagger records (see load_options::stagger): stream i gets
+// floor(stagger * i / streams) of them, in rounds.
+std::string render_stagger(const load_options& o, uint32_t c, uint64_t& count) {
+  std::string out;
+  count = 0;
+  if (o.stagger == 0) return out;
+  rng gen(stream_seed(o.seed, "load.stagger." + std::to_string(c)));
+  for (uint64_t round = 0;; ++round) {
+    bool any = false;
+    for (uint64_t i = c; i < o.streams; i += o.connections) {
+      // stagger <= 10^6 and i < 10^7: the product fits in 64 bits.
+      const uint64_t extra = o.stagger * i / o.streams;
+      if (round >= extra) continue;
+      append_record(out, o, i, gen);
+      ++count;
+      any = true;
+    }
+    if (!any) break;
+  }
+  return out;
+}
+
+}  // namespace
+
 // Connection c's buffer: rounds over its streams c, c + C, c + 2C, ...
 rendered_records render_records(const load_options& o, uint32_t c) {
   const uint64_t per_round = (o.streams - c + o.connections - 1) / o.connections;
@@ -72,22 +114,9 @@ rendered_records render_records(const load_options& o, uint32_t c) {
   r.bytes.reserve(per_round * rounds * (o.prefix.size() + 10 + 9 * o.dimension));
   // One generator per connection, from the seed and the connection number.
   rng gen(stream_seed(o.seed, "load.connection." + std::to_string(c)));
-  std::string name;
   for (uint64_t round = 0; round < rounds; ++round) {
     for (uint64_t k = 0; k < per_round; ++k) {
-      name.assign(o.prefix);
-      name.append(std::to_string(c + k * o.connections));
-      r.bytes.append(name);
-      r.bytes.append(",,");
-      for (uint32_t d = 0; d < o.dimension; ++d) {
-        if (d != 0) r.bytes.push_back(',');
-        double u;
-        do u = gen.next_double();
-        while (u == 0);
-        const double x = 100.0 + normal_quantile(u);
-        append_millis(r.bytes, std::llround(x * 1000.0));
-      }
-      r.bytes.push_back('\n');
+      append_record(r.bytes, o, c + k * o.connections, gen);
       r.ends.push_back(r.bytes.size());
     }
   }
@@ -134,6 +163,7 @@ expected<bool> check(const load_options& o) {
     return make_error("load: duration must be a positive number of seconds");
   if (!(o.rate >= 0) || !std::isfinite(o.rate))
     return make_error("load: rate must be a number of records per second, 0 for no limit");
+  if (o.stagger > 1'000'000) return make_error("load: stagger must be between 0 and 1000000");
   if (o.dimension < 1 || o.dimension > max_dimension)
     return make_error("load: dimension must be between 1 and 64");
   if (o.buffer_records < 1 || o.buffer_records > max_buffer_records)
@@ -231,6 +261,25 @@ expected<load_report> run_load(const load_options& o,
   bufs.reserve(o.connections);
   for (uint32_t c = 0; c < o.connections; ++c) bufs.push_back(render_records(o, c));
 
+  // The stagger records, before the clock starts, one connection after the
+  // other (each stream's records stay on its own connection).
+  uint64_t staggered = 0;
+  for (uint32_t c = 0; c < o.connections && o.stagger != 0; ++c) {
+    uint64_t count = 0;
+    const std::string extra = render_stagger(o, c, count);
+    std::size_t pos = 0;
+    while (pos < extra.size()) {
+      const ssize_t n = ::send(fds[c], extra.data() + pos, extra.size() - pos, MSG_NOSIGNAL);
+      if (n < 0 && errno == EINTR) continue;
+      if (n < 0) {
+        close_all();
+        return make_error(std::string("load: send failed: ") + std::strerror(errno));
+      }
+      pos += static_cast<std::size_t>(n);
+    }
+    staggered += count;
+  }
+
   // Quotas: connection c sends records/C, the first records % C one more.
   std::vector<uint64_t> quota(o.connections, 0);
   if (o.records != 0) {
@@ -279,6 +328,7 @@ expected<load_report> run_load(const load_options& o,
   close_all();
 
   load_report r;
+  r.stagger_records = staggered;
   auto last = start;
   for (const auto& s : states) {
     if (!s.error.empty()) return make_error(s.error);

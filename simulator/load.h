@@ -39,6 +39,11 @@ struct load_options {
   uint32_t dimension = 1;           // values per record, 1 .. 64
   uint64_t buffer_records = 1 << 20;  // records rendered per connection, >= streams/connections
   double rate = 0;  // records per second, all connections together; 0 = as fast as accepted
+  // Before the clock starts, stream i gets floor(stagger * i / streams)
+  // records of its own (0 .. 1,000,000), so that streams that count their
+  // samples (an evaluation every k) are out of step, as in a real fleet,
+  // instead of all reaching k at once. Not counted in records_sent.
+  uint64_t stagger = 0;
 };
 
 struct load_progress {
@@ -49,6 +54,7 @@ struct load_progress {
 struct load_report {
   uint64_t records_sent = 0;
   uint64_t bytes_sent = 0;
+  uint64_t stagger_records = 0;  // sent before the clock started
   double seconds = 0;  // from the first write to the last
   double records_per_second() const { return seconds > 0 ? records_sent / seconds : 0; }
 };

@@ -42,11 +42,11 @@ import urllib.request
 
 STREAMS = 10_000
 CONNECTIONS = 4
-REFERENCE = 500
+REFERENCE = 500  # the built-in defaults; --reference / --recent change them
 RECENT = 100
 
 
-def config_text(every_samples):
+def config_text(every_samples, reference, recent):
     # "Evaluations off": the count cadence off and a timer of an hour, which
     # never fires within the run (a group must have some cadence).
     every_seconds = 3600 if every_samples == 0 else 0
@@ -60,8 +60,8 @@ seed = 1
 [[group]]
 name = "bench"
 match = "*"
-reference_size = {REFERENCE}
-recent_size = {RECENT}
+reference_size = {reference}
+recent_size = {recent}
 every_samples = {every_samples}
 every_seconds = {every_seconds}
 """
@@ -119,6 +119,14 @@ class Daemon:
             time.sleep(0.2)
         return last
 
+    def wait_queue_empty(self, timeout=120):
+        deadline = time.monotonic() + timeout
+        while time.monotonic() < deadline:
+            if self.value(self.metrics(), "plumbline_evaluation_queue_length") == 0:
+                return
+            time.sleep(0.5)
+        sys.exit("ingest_bench: the evaluation queue did not drain")
+
     def stop(self):
         if self.proc.poll() is None:
             self.proc.terminate()
@@ -130,7 +138,7 @@ class Daemon:
         self.log.close()
 
 
-def run_load(build, port, streams, seconds=None, records=None, rate=0):
+def run_load(build, port, streams, seconds=None, records=None, rate=0, stagger=0):
     cmd = [os.path.join(build, "simulator", "plumbline-sim"), "load",
            "--to", f"127.0.0.1:{port}", "--streams", str(streams),
            "--connections", str(CONNECTIONS), "--json"]
@@ -140,6 +148,8 @@ def run_load(build, port, streams, seconds=None, records=None, rate=0):
         cmd += ["--records", str(records), "--duration", "600"]
     if rate:
         cmd += ["--rate", str(rate)]
+    if stagger:
+        cmd += ["--stagger", str(stagger)]
     out = subprocess.run(cmd, check=True, capture_output=True, text=True).stdout
     return json.loads(out)
 
@@ -182,6 +192,9 @@ def main():
     ap.add_argument("--rate", type=float, default=1_000_000,
                     help="paced rate of the run with evaluations, records/s")
     ap.add_argument("--streams", type=int, default=STREAMS)
+    ap.add_argument("--reference", type=int, default=REFERENCE, help="reference window size")
+    ap.add_argument("--recent", type=int, default=RECENT, help="recent window size")
+    ap.add_argument("--parts", default="1,2,3", help="which parts to run, e.g. 2,3")
     ap.add_argument("--no-in-process", action="store_true",
                     help="leave out part 1 (the in-process baselines)")
     args = ap.parse_args()
@@ -190,86 +203,109 @@ def main():
     print(f"load average before: {loadavg()}")
 
     # 1. In process.
-    if not args.no_in_process:
+    parts = {int(p) for p in args.parts.split(",")}
+    if args.no_in_process:
+        parts.discard(1)
+    if 1 in parts:
         out = subprocess.run([os.path.join(args.build, "tests", "bench",
                                            "plumbline_bench_ingest"),
                               "--streams", str(streams), "--rounds", "3" if args.quick else "5"],
                              check=True, capture_output=True, text=True).stdout
         print(out, end="", flush=True)
 
-    raw_window_bytes = streams * (REFERENCE + RECENT) * 8
-    fill = streams * (REFERENCE + RECENT + 100)  # every window full, before timing
-    results = {}
+    reference, recent = args.reference, args.recent
+    raw_window_bytes = streams * (reference + recent) * 8
+    fill = streams * (reference + recent + 100)  # every window full, before timing
+    print(f"windows: reference {reference}, recent {recent} samples per stream")
     with tempfile.TemporaryDirectory() as tmp:
-        # 2. Ingest alone.
-        cfg = os.path.join(tmp, "off.toml")
-        with open(cfg, "w") as f:
-            f.write(config_text(0))
-        d = Daemon(args.build, cfg, os.path.join(tmp, "off.log"))
-        try:
-            warm = run_load(args.build, d.ingest_port, streams, records=fill)
-            d.wait_records(warm["records_sent"])
-            r = run_load(args.build, d.ingest_port, streams, seconds=seconds)
-            expected = warm["records_sent"] + r["records_sent"]
-            got = d.wait_records(expected)
-            rate = r["records_sent"] / r["seconds"]
-            rss = d.rss_bytes()
-            text = d.metrics()
-            rejected = sum(float(m.group(1)) for m in re.finditer(
-                r'^plumbline_lines_rejected_total{[^}]*} ([0-9.e+-]+)$', text, re.M))
-            results["alone"] = dict(rate=rate, sent=expected, accepted=got, rss=rss,
-                                    rejected=rejected)
-        finally:
-            d.stop()
-        print(f"\ningest alone: {streams} streams, {CONNECTIONS} connections, {seconds:g} s")
-        print(f"  {rate / 1e6:.2f} M records/s (target >= 8.00)  ratio {rate / 8e6:.2f}")
-        print(f"  sent {expected:.0f}, accepted {got:.0f}, rejected {rejected:.0f}"
-              f"  ({'no loss' if got == expected and rejected == 0 else 'LOSS'})")
-        print(f"  resident memory {rss / 2**20:.1f} MiB; raw window bytes "
-              f"{raw_window_bytes / 2**20:.1f} MiB; ratio {rss / raw_window_bytes:.2f}"
-              f" (target <= 1.50)")
-
-        # 3. With evaluations, paced.
-        cfg = os.path.join(tmp, "on.toml")
-        with open(cfg, "w") as f:
-            f.write(config_text(1000))
-        d = Daemon(args.build, cfg, os.path.join(tmp, "on.log"))
-        try:
-            warm = run_load(args.build, d.ingest_port, streams, records=fill)
-            d.wait_records(warm["records_sent"])
-            time.sleep(2)  # let the first evaluations (windows just full) finish
-            t0 = d.metrics()
-            h0 = d.histogram(t0, "plumbline_evaluation_latency_seconds")
-            c0 = d.value(t0, "plumbline_evaluations_coalesced_total")
-            n0 = d.value(t0, "plumbline_evaluation_latency_seconds_count")
-            r = run_load(args.build, d.ingest_port, streams, seconds=seconds * 2,
-                         rate=args.rate)
-            expected = warm["records_sent"] + r["records_sent"]
-            got = d.wait_records(expected)
-            time.sleep(1)
-            t1 = d.metrics()
-            h1 = d.histogram(t1, "plumbline_evaluation_latency_seconds")
-            c1 = d.value(t1, "plumbline_evaluations_coalesced_total")
-            n1 = d.value(t1, "plumbline_evaluation_latency_seconds_count")
-            rss_on = d.rss_bytes()
-        finally:
-            d.stop()
-        rate_on = r["records_sent"] / r["seconds"]
-        p50, evals = percentile(h0, h1, 0.50)
-        p90, _ = percentile(h0, h1, 0.90)
-        p99, _ = percentile(h0, h1, 0.99)
-        within_1s = share_within(h0, h1, 1.0)
-        print(f"\nwith evaluations every 1000 samples, paced at {args.rate / 1e6:.2f} M records/s,"
-              f" {2 * seconds:g} s")
-        print(f"  {rate_on / 1e6:.2f} M records/s held (target >= 1.00); sent {expected:.0f},"
-              f" accepted {got:.0f} ({'no loss' if got == expected else 'LOSS'})")
-        print(f"  evaluations {n1 - n0:.0f} ({(n1 - n0) / (2 * seconds):.0f}/s),"
-              f" coalesced {c1 - c0:.0f}")
-        print(f"  latency p50 {p50 * 1e3:.1f} ms, p90 {p90 * 1e3:.1f} ms, p99 {p99 * 1e3:.1f} ms"
-              f" (target p99 <= 1000 ms); share within 1 s: {within_1s:.4f}")
-        print(f"  resident memory {rss_on / 2**20:.1f} MiB; ratio to raw window bytes"
-              f" {rss_on / raw_window_bytes:.2f}")
+        if 2 in parts:
+            part_alone(args, tmp, streams, seconds, reference, recent, fill, raw_window_bytes)
+        if 3 in parts:
+            part_evaluations(args, tmp, streams, seconds, reference, recent, fill,
+                             raw_window_bytes)
     print(f"\nload average after: {loadavg()}")
+
+
+def part_alone(args, tmp, streams, seconds, reference, recent, fill, raw_window_bytes):
+    # 2. Ingest alone.
+    cfg = os.path.join(tmp, "off.toml")
+    with open(cfg, "w") as f:
+        f.write(config_text(0, reference, recent))
+    d = Daemon(args.build, cfg, os.path.join(tmp, "off.log"))
+    try:
+        warm = run_load(args.build, d.ingest_port, streams, records=fill)
+        d.wait_records(warm["records_sent"])
+        r = run_load(args.build, d.ingest_port, streams, seconds=seconds)
+        expected = warm["records_sent"] + r["records_sent"]
+        got = d.wait_records(expected)
+        rate = r["records_sent"] / r["seconds"]
+        rss = d.rss_bytes()
+        text = d.metrics()
+        rejected = sum(float(m.group(1)) for m in re.finditer(
+            r'^plumbline_lines_rejected_total{[^}]*} ([0-9.e+-]+)$', text, re.M))
+    finally:
+        d.stop()
+    print(f"\ningest alone: {streams} streams, {CONNECTIONS} connections, {seconds:g} s")
+    print(f"  {rate / 1e6:.2f} M records/s (target >= 8.00)  ratio {rate / 8e6:.2f}")
+    print(f"  sent {expected:.0f}, accepted {got:.0f}, rejected {rejected:.0f}"
+          f"  ({'no loss' if got == expected and rejected == 0 else 'LOSS'})")
+    print(f"  resident memory {rss / 2**20:.1f} MiB; raw window bytes "
+          f"{raw_window_bytes / 2**20:.1f} MiB; ratio {rss / raw_window_bytes:.2f}"
+          f" (target <= 1.50)")
+
+
+
+def part_evaluations(args, tmp, streams, seconds, reference, recent, fill, raw_window_bytes):
+    # At least three evaluation cycles of every stream (a cycle is 1000
+    # samples of each stream at the paced rate).
+    eval_seconds = max(2 * seconds, 3 * 1000 * streams / args.rate)
+    # 3. With evaluations, paced.
+    cfg = os.path.join(tmp, "on.toml")
+    with open(cfg, "w") as f:
+        f.write(config_text(1000, reference, recent))
+    d = Daemon(args.build, cfg, os.path.join(tmp, "on.log"))
+    try:
+        # Stagger the streams by up to 1000 samples, so that their count
+        # cadences are spread over the cycle as in a real fleet (the load
+        # sender feeds all streams in lockstep, which would otherwise make
+        # every stream ask for an evaluation at the same moment).
+        warm = run_load(args.build, d.ingest_port, streams, records=fill, stagger=1000)
+        warm["records_sent"] += warm["stagger_records"]
+        d.wait_records(warm["records_sent"])
+        # Every window just became full, so every stream asked for its first
+        # evaluation at once: let that queue drain before the clock starts.
+        d.wait_queue_empty()
+        time.sleep(1)
+        t0 = d.metrics()
+        h0 = d.histogram(t0, "plumbline_evaluation_latency_seconds")
+        c0 = d.value(t0, "plumbline_evaluations_coalesced_total")
+        n0 = d.value(t0, "plumbline_evaluation_latency_seconds_count")
+        r = run_load(args.build, d.ingest_port, streams, seconds=eval_seconds, rate=args.rate)
+        expected = warm["records_sent"] + r["records_sent"]
+        got = d.wait_records(expected)
+        time.sleep(1)
+        t1 = d.metrics()
+        h1 = d.histogram(t1, "plumbline_evaluation_latency_seconds")
+        c1 = d.value(t1, "plumbline_evaluations_coalesced_total")
+        n1 = d.value(t1, "plumbline_evaluation_latency_seconds_count")
+        rss_on = d.rss_bytes()
+    finally:
+        d.stop()
+    rate_on = r["records_sent"] / r["seconds"]
+    p50, evals = percentile(h0, h1, 0.50)
+    p90, _ = percentile(h0, h1, 0.90)
+    p99, _ = percentile(h0, h1, 0.99)
+    within_1s = share_within(h0, h1, 1.0)
+    print(f"\nwith evaluations every 1000 samples, paced at {args.rate / 1e6:.2f} M records/s,"
+          f" {eval_seconds:g} s")
+    print(f"  {rate_on / 1e6:.2f} M records/s held (target >= 1.00); sent {expected:.0f},"
+          f" accepted {got:.0f} ({'no loss' if got == expected else 'LOSS'})")
+    print(f"  evaluations {n1 - n0:.0f} ({(n1 - n0) / eval_seconds:.0f}/s),"
+          f" coalesced {c1 - c0:.0f}")
+    print(f"  latency p50 {p50 * 1e3:.1f} ms, p90 {p90 * 1e3:.1f} ms, p99 {p99 * 1e3:.1f} ms"
+          f" (target p99 <= 1000 ms); share within 1 s: {within_1s:.4f}")
+    print(f"  resident memory {rss_on / 2**20:.1f} MiB; ratio to raw window bytes"
+          f" {rss_on / raw_window_bytes:.2f}")
 
 
 if __name__ == "__main__":
