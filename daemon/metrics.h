@@ -66,6 +66,8 @@ class daemon_metrics {
   std::string render() const;
 
  private:
+  std::string render_text() const;
+
   const stream_table& streams_;
   const ingest_counters& ingest_;
   const evaluator* eval_ = nullptr;
