@@ -21,6 +21,7 @@
 #include <cstdint>
 #include <functional>
 #include <string>
+#include <vector>
 
 #include "core/status.h"
 
@@ -37,6 +38,12 @@ struct load_options {
   std::string prefix = "load.s";    // stream names: prefix + index
   uint32_t dimension = 1;           // values per record, 1 .. 64
   uint64_t buffer_records = 1 << 20;  // records rendered per connection, >= streams/connections
+  double rate = 0;  // records per second, all connections together; 0 = as fast as accepted
+  // Before the clock starts, stream i gets floor(stagger * i / streams)
+  // records of its own (0 .. 1,000,000), so that streams that count their
+  // samples (an evaluation every k) are out of step, as in a real fleet,
+  // instead of all reaching k at once. Not counted in records_sent.
+  uint64_t stagger = 0;
 };
 
 struct load_progress {
@@ -47,9 +54,21 @@ struct load_progress {
 struct load_report {
   uint64_t records_sent = 0;
   uint64_t bytes_sent = 0;
+  uint64_t stagger_records = 0;  // sent before the clock started
   double seconds = 0;  // from the first write to the last
   double records_per_second() const { return seconds > 0 ? records_sent / seconds : 0; }
 };
+
+// The bytes connection `connection` of run_load(options) sends, round and
+// round: a whole number of rounds over its streams, at least buffer_records
+// records; ends[i] is the offset just past record i's newline. Exposed for
+// the ingest benchmark's in-process baselines, which parse the same bytes.
+// REQUIRES: the options pass run_load's checks; connection < connections.
+struct rendered_records {
+  std::string bytes;
+  std::vector<uint64_t> ends;
+};
+rendered_records render_records(const load_options& options, uint32_t connection);
 
 // Checks the options (a message naming the bad one), connects every
 // connection first (failing before sending anything when one cannot), then
