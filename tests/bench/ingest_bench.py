@@ -97,6 +97,12 @@ class Daemon:
             out[float("inf") if m.group(1) == "+Inf" else float(m.group(1))] = float(m.group(2))
         return out
 
+    def cpu_seconds(self):
+        """User + system CPU time of the daemon so far (all its threads)."""
+        with open(f"/proc/{self.proc.pid}/stat") as f:
+            fields = f.read().rsplit(")", 1)[1].split()
+        return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
     def rss_bytes(self):
         with open(f"/proc/{self.proc.pid}/status") as f:
             for line in f:
@@ -235,9 +241,11 @@ def part_alone(args, tmp, streams, seconds, reference, recent, fill, raw_window_
     try:
         warm = run_load(args.build, d.ingest_port, streams, records=fill)
         d.wait_records(warm["records_sent"])
+        cpu0 = d.cpu_seconds()
         r = run_load(args.build, d.ingest_port, streams, seconds=seconds)
         expected = warm["records_sent"] + r["records_sent"]
         got = d.wait_records(expected)
+        daemon_cpu = d.cpu_seconds() - cpu0
         rate = r["records_sent"] / r["seconds"]
         rss = d.rss_bytes()
         text = d.metrics()
@@ -247,6 +255,9 @@ def part_alone(args, tmp, streams, seconds, reference, recent, fill, raw_window_
         d.stop()
     print(f"\ningest alone: {streams} streams, {CONNECTIONS} connections, {seconds:g} s")
     print(f"  {rate / 1e6:.2f} M records/s (target >= 8.00)  ratio {rate / 8e6:.2f}")
+    print(f"  the daemon used {daemon_cpu / r['seconds']:.2f} cores (the sender and the kernel's"
+          f" loopback the rest): {r['records_sent'] / daemon_cpu / 1e6:.2f} M records per"
+          f" daemon CPU-second")
     print(f"  sent {expected:.0f}, accepted {got:.0f}, rejected {rejected:.0f}"
           f"  ({'no loss' if got == expected and rejected == 0 else 'LOSS'})")
     print(f"  resident memory {rss / 2**20:.1f} MiB; raw window bytes "
