@@ -291,6 +291,8 @@ def part_evaluations(args, tmp, streams, seconds, reference, recent, fill, raw_w
         h0 = d.histogram(t0, "plumbline_evaluation_latency_seconds")
         c0 = d.value(t0, "plumbline_evaluations_coalesced_total")
         n0 = d.value(t0, "plumbline_evaluation_latency_seconds_count")
+        w0 = d.value(t0, "plumbline_evaluation_seconds_sum")
+        cpu0 = d.cpu_seconds()
         r = run_load(args.build, d.ingest_port, streams, seconds=eval_seconds, rate=args.rate)
         expected = warm["records_sent"] + r["records_sent"]
         got = d.wait_records(expected)
@@ -299,6 +301,8 @@ def part_evaluations(args, tmp, streams, seconds, reference, recent, fill, raw_w
         h1 = d.histogram(t1, "plumbline_evaluation_latency_seconds")
         c1 = d.value(t1, "plumbline_evaluations_coalesced_total")
         n1 = d.value(t1, "plumbline_evaluation_latency_seconds_count")
+        w1 = d.value(t1, "plumbline_evaluation_seconds_sum")
+        daemon_cpu = d.cpu_seconds() - cpu0
         rss_on = d.rss_bytes()
     finally:
         d.stop()
@@ -313,6 +317,9 @@ def part_evaluations(args, tmp, streams, seconds, reference, recent, fill, raw_w
           f" accepted {got:.0f} ({'no loss' if got == expected else 'LOSS'})")
     print(f"  evaluations {n1 - n0:.0f} ({(n1 - n0) / eval_seconds:.0f}/s),"
           f" coalesced {c1 - c0:.0f}")
+    if n1 > n0:
+        print(f"  one evaluation took {(w1 - w0) / (n1 - n0) * 1e3:.2f} ms of wall time on average;"
+              f" the daemon used {daemon_cpu / eval_seconds:.2f} cores")
     print(f"  latency p50 {p50 * 1e3:.1f} ms, p90 {p90 * 1e3:.1f} ms, p99 {p99 * 1e3:.1f} ms"
           f" (target p99 <= 1000 ms); share within 1 s: {within_1s:.4f}")
     print(f"  resident memory {rss_on / 2**20:.1f} MiB; ratio to raw window bytes"
