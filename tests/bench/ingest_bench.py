@@ -294,6 +294,7 @@ def part_evaluations(args, tmp, streams, seconds, reference, recent, fill, raw_w
         w0 = d.value(t0, "plumbline_evaluation_seconds_sum")
         cpu0 = d.cpu_seconds()
         r = run_load(args.build, d.ingest_port, streams, seconds=eval_seconds, rate=args.rate)
+        daemon_cpu = d.cpu_seconds() - cpu0
         expected = warm["records_sent"] + r["records_sent"]
         got = d.wait_records(expected)
         time.sleep(1)
@@ -302,7 +303,6 @@ def part_evaluations(args, tmp, streams, seconds, reference, recent, fill, raw_w
         c1 = d.value(t1, "plumbline_evaluations_coalesced_total")
         n1 = d.value(t1, "plumbline_evaluation_latency_seconds_count")
         w1 = d.value(t1, "plumbline_evaluation_seconds_sum")
-        daemon_cpu = d.cpu_seconds() - cpu0
         rss_on = d.rss_bytes()
     finally:
         d.stop()
