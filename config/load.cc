@@ -210,7 +210,7 @@ class loader {
         m += " (did you mean " +
              std::string(near == "group" ? "[[group]]" : "[" + std::string(near) + "]") + "?)";
       else
-        m += " (sections: [ingest], [http], [evaluation], [log], [[group]])";
+        m += " (sections: [ingest], [http], [evaluation], [state], [log], [[group]])";
       errors_.add(at, m);
       return;
     }
@@ -222,7 +222,8 @@ class loader {
         placed = true;
         break;
       }
-    if (!placed) m += " (keys go in a section: [ingest], [http], [evaluation], [log] or [[group]])";
+    if (!placed)
+      m += " (keys go in a section: [ingest], [http], [evaluation], [state], [log] or [[group]])";
     errors_.add(at, m);
   }
 

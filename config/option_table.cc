@@ -32,6 +32,8 @@ std::string_view section_key(option_section s) {
       return "http";
     case option_section::evaluation:
       return "evaluation";
+    case option_section::state:
+      return "state";
     case option_section::log:
       return "log";
     case option_section::group:
@@ -48,6 +50,8 @@ std::string_view section_header(option_section s) {
       return "[http]";
     case option_section::evaluation:
       return "[evaluation]";
+    case option_section::state:
+      return "[state]";
     case option_section::log:
       return "[log]";
     case option_section::group:
@@ -480,6 +484,25 @@ std::vector<option_spec> build() {
       S::evaluation, "seed", 0, std::numeric_limits<int64_t>::max(),
       "Seed of all resampling; the same seed and data give the same results.",
       +[](parse_state& s) -> uint64_t& { return s.config.evaluation.seed; });
+
+  // [state]
+  b.add(S::state, "data_dir", "string", toml_quote(b.defaults.config.state.data_dir),
+        "\"\" (snapshots off) | a directory path, relative to this file's directory",
+        "Directory for snapshots of every stream's state, restored at start; created when "
+        "missing. `plumbline serve --data-dir` overrides it.",
+        [](const toml::node& v, parse_state& st, std::vector<issue>& out) {
+          const auto x = read_string(v, "a directory path", out);
+          if (!x) return;
+          if (x->size() > max_path_bytes) {
+            out.push_back({"is longer than " + std::to_string(max_path_bytes) + " bytes"});
+            return;
+          }
+          st.config.state.data_dir = x->empty() ? std::string() : resolve(st, *x);
+        });
+  b.number(
+      S::state, "snapshot_interval_seconds", {0, false, 86400, false},
+      "Seconds between snapshots; 0 = only on POST /api/snapshot and at a graceful stop.",
+      +[](parse_state& s) -> double& { return s.config.state.snapshot_interval_seconds; });
 
   // [log]
   b.choice<std::string>(

@@ -18,13 +18,14 @@
 
 namespace plumbline::config {
 
-enum class option_section { ingest, http, evaluation, log, group };
+enum class option_section { ingest, http, evaluation, state, log, group };
 
-inline constexpr option_section all_sections[] = {option_section::ingest, option_section::http,
-                                                  option_section::evaluation, option_section::log,
-                                                  option_section::group};
+inline constexpr option_section all_sections[] = {
+    option_section::ingest, option_section::http, option_section::evaluation,
+    option_section::state,  option_section::log,  option_section::group};
 
-// The TOML key of the section: "ingest", "http", "evaluation", "log", "group".
+// The TOML key of the section: "ingest", "http", "evaluation", "state", "log",
+// "group".
 std::string_view section_key(option_section s);
 // As written in a file: "[ingest]", ..., "[[group]]".
 std::string_view section_header(option_section s);
@@ -40,7 +41,7 @@ struct option_info {
 };
 
 // All keys, in the order of the example file: [ingest], [http],
-// [evaluation], [log], then [[group]].
+// [evaluation], [state], [log], then [[group]].
 const std::vector<option_info>& option_table();
 
 // The key's entry, or nullptr when the section has no such key.

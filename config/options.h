@@ -74,6 +74,13 @@ struct evaluation_options {
   uint64_t seed = 1;     // every stream's generator derives from it
 };
 
+// Where the daemon keeps its snapshots (daemon/snapshot.h). An empty data_dir
+// turns snapshots off.
+struct state_options {
+  std::string data_dir;                    // resolved path, or empty
+  double snapshot_interval_seconds = 10;   // 0 = only on request and at a graceful stop
+};
+
 struct log_options {
   std::string level = "info";  // debug | info | warn | error
 };
@@ -86,6 +93,9 @@ struct stream_group {
   monitor_settings settings;
   source_position position;                 // the [[group]] header
   source_position reference_file_position;  // the reference_file value
+  // policy == file: the samples of reference_file, row-major, filled in by
+  // the daemon when it reads the file (config/ does not read CSV files).
+  std::vector<double> reference_sample;
 };
 
 struct daemon_config {
@@ -93,6 +103,7 @@ struct daemon_config {
   ingest_options ingest;
   http_options http;
   evaluation_options evaluation;
+  state_options state;
   log_options log;
   std::vector<stream_group> groups;
 };

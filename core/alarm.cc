@@ -18,6 +18,7 @@
 
 #include <algorithm>
 #include <cassert>
+#include <utility>
 
 namespace plumbline {
 
@@ -142,6 +143,19 @@ void alarm_state::copy_history(std::vector<alarm_event>& out) const {
   out.resize(history_.size());
   for (std::size_t i = 0; i < history_.size(); ++i)
     out[i] = history(i);
+}
+
+void alarm_state::set_rule(const alarm_rule& rule) {
+  std::vector<alarm_event> kept;
+  copy_history(kept);
+  if (kept.size() > rule.history_limit) {
+    const std::size_t cut = kept.size() - rule.history_limit;
+    kept.erase(kept.begin(), kept.begin() + static_cast<std::ptrdiff_t>(cut));
+    dropped_ += cut;
+  }
+  rule_ = rule;
+  history_ = std::move(kept);
+  oldest_ = 0;
 }
 
 }  // namespace plumbline

@@ -49,6 +49,8 @@
 
 namespace plumbline {
 
+struct state_codec_access;
+
 enum class alarm_event_kind { raised, cleared };
 enum class alarm_cause { rule, rebaseline };
 
@@ -115,12 +117,17 @@ class alarm_state {
   void copy_history(std::vector<alarm_event>& out) const;
 
   const alarm_rule& rule() const { return rule_; }
+  // Replaces the rule (a configuration reload). The alarm's state, counters
+  // and runs are kept; the history keeps its newest rule.history_limit
+  // events (the rest count as dropped). REQUIRES: rule validated.
+  void set_rule(const alarm_rule& rule);
 
  private:
   // interval: the evaluation's interval, or nullptr.
   std::optional<alarm_event> step(double time, bool signal, bool has_p, double p,
                                   const drift_interval* interval);
   void log(const alarm_event& e);
+  friend struct state_codec_access;  // core/state_codec.cc: snapshots
 
   alarm_rule rule_;
   bool active_ = false;

@@ -386,4 +386,42 @@ std::optional<alarm_event> stream_monitor::rebaseline(double time) {
   return alarm_.rebaseline(time);
 }
 
+std::optional<alarm_event> stream_monitor::apply_settings(const monitor_settings& s,
+                                                          double time) {
+  assert(s.reference_size >= 1 && s.recent_size >= 1);
+  const std::size_t ref_cap = s.reference_size < 1 ? 1 : s.reference_size;
+  const std::size_t rec_cap = s.recent_size < 1 ? 1 : s.recent_size;
+  alarm_.set_rule(s.alarm);
+  if (s.policy != settings_.policy) {
+    settings_ = s;
+    if (dim_ == 1) {
+      ref_1_.emplace(ref_cap);
+      rec_1_.emplace(rec_cap);
+    } else {
+      ref_n_.emplace(ref_cap, dim_);
+      rec_n_.emplace(rec_cap, dim_);
+    }
+    since_evaluation_ = 0;
+    ++generation_;
+    ++rebaselines_total_;
+    return alarm_.rebaseline(time);
+  }
+  bool changed = false;
+  auto resize = [&changed](auto& w, std::size_t cap) {
+    if (w->capacity() == cap) return;
+    w->set_capacity(cap);
+    changed = true;
+  };
+  if (dim_ == 1) {
+    if (s.policy != reference_policy::file) resize(ref_1_, ref_cap);
+    resize(rec_1_, rec_cap);
+  } else {
+    if (s.policy != reference_policy::file) resize(ref_n_, ref_cap);
+    resize(rec_n_, rec_cap);
+  }
+  settings_ = s;
+  if (changed) ++generation_;
+  return std::nullopt;
+}
+
 }  // namespace plumbline

@@ -45,6 +45,24 @@
 // Seeds. stream_seed(daemon_seed, name) derives each stream's generator seed
 // (below), so every stream has its own reproducible random stream.
 //
+// Reload. apply_settings(s, time) moves a running stream to new settings:
+//   same policy   a window whose size changed keeps its newest samples that
+//                 fit (set_capacity); under the file policy the reference
+//                 keeps the capacity its file gave it. A baseline reference
+//                 made larger is open again: the next samples fill it before
+//                 the recent window moves. Tests, resampling budget, interval,
+//                 cadence and the alarm rule take effect at the next
+//                 evaluation; the alarm keeps its state and its newest
+//                 history_limit events.
+//   new policy    the windows are rebuilt empty at the new sizes and the
+//                 change acts as a rebaseline (an active alarm clears with
+//                 cause rebaseline).
+// A change of either window bumps the generation, so that a result captured
+// before it is dropped as stale.
+//
+// Snapshots. core/state_codec.h writes and reads the monitor's complete state
+// (windows with their running sums, alarm, counters) as bytes.
+//
 // Thread-safety: none. One owner; the daemon locks per stream around push(),
 // capture(), record() and rebaseline(). evaluate() is static and touches only
 // its arguments: it may run on any thread with its own scratch and rng.
@@ -190,6 +208,11 @@ class stream_monitor {
   // active alarm with cause rebaseline and returns that event, if any.
   std::optional<alarm_event> rebaseline(double time);
 
+  // Replaces the settings (a configuration reload; see "Reload" in the
+  // header comment). Returns the alarm event it caused, if any (a changed
+  // reference policy clears an active alarm). REQUIRES: s validated.
+  std::optional<alarm_event> apply_settings(const monitor_settings& s, double time);
+
   const monitor_settings& settings() const { return settings_; }
   std::size_t dimension() const { return dim_; }
   const alarm_state& alarm() const { return alarm_; }
@@ -221,6 +244,7 @@ class stream_monitor {
               std::string& error);
   bool reference_full() const;
   bool recent_full() const;
+  friend struct state_codec_access;  // core/state_codec.cc: snapshots
 
   monitor_settings settings_;
   std::size_t dim_;

@@ -52,6 +52,8 @@
 
 namespace plumbline {
 
+struct state_codec_access;
+
 namespace window_detail {
 
 // A running sum with Neumaier's compensation ("Rundungsfehleranalyse einiger
@@ -154,6 +156,7 @@ class sample_window {
     return j < buf_.size() ? j : j - buf_.size();
   }
   void rebuild();
+  friend struct state_codec_access;  // core/state_codec.cc: snapshots
 
   std::vector<double> buf_;
   std::size_t head_ = 0;  // slot of the oldest value
@@ -209,6 +212,7 @@ class row_window {
   }
   void rebuild_column(std::size_t column);
   void rebuild();
+  friend struct state_codec_access;  // core/state_codec.cc: snapshots
 
   std::size_t capacity_;
   std::size_t dim_;

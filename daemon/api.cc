@@ -207,8 +207,12 @@ json detail_json(const stream_entry& e) {
 }  // namespace
 
 api::api(stream_table& streams, const daemon_metrics& metrics, const config::daemon_config& config,
-         bool http_is_loopback)
-    : streams_(streams), metrics_(metrics), config_(config), http_is_loopback_(http_is_loopback) {}
+         bool http_is_loopback, api_actions actions)
+    : streams_(streams),
+      metrics_(metrics),
+      config_(config),
+      http_is_loopback_(http_is_loopback),
+      actions_(std::move(actions)) {}
 
 http::response api::handle(const http::request& req) const {
   const bool get = req.method == bh::verb::get || req.method == bh::verb::head;
@@ -223,6 +227,26 @@ http::response api::handle(const http::request& req) const {
   if (path == "/healthz") {
     if (!get) return text(405, "use GET\n");
     return text(200, "ok\n");
+  }
+  if (path == "/api/snapshot") {
+    if (req.method != bh::verb::post) return json_error(405, "use POST");
+    if (auto refused = refuse_post(req)) return *refused;
+    if (!actions_.snapshot)
+      return json_error(409, "snapshots are off: no data directory is configured");
+    auto written = actions_.snapshot();
+    if (!written) return json_error(500, "snapshot failed: " + written.err().message);
+    return json_response(200, json{{"snapshot", written.value()}});
+  }
+  if (path == "/api/reload") {
+    if (req.method != bh::verb::post) return json_error(405, "use POST");
+    if (auto refused = refuse_post(req)) return *refused;
+    if (!actions_.reload) return json_error(409, "this daemon cannot reload");
+    const api_actions::reload_result r = actions_.reload();
+    if (!r.ok) return json_response(422, json{{"reloaded", false}, {"errors", r.errors}});
+    return json_response(200, json{{"reloaded", true},
+                                   {"streams", r.streams},
+                                   {"kept_old_settings", r.kept_old},
+                                   {"notes", r.notes}});
   }
   if (path == "/api/streams" || path == "/api/streams/") {
     if (!get) return json_error(405, "use GET");

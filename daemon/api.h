@@ -10,6 +10,11 @@
 //   POST /api/streams/{stream}/rebaseline  collect a new reference (policy
 //                                          baseline), or empty both windows
 //                                          (lagged), or the recent one (file)
+//   POST /api/snapshot                     write a snapshot now (200 with the
+//                                          file, 409 without a data directory,
+//                                          500 when the write fails)
+//   POST /api/reload                       re-read the configuration (200, or
+//                                          422 with every error when refused)
 //
 // Stream names may contain '/', so {stream} is the rest of the path (it may
 // also be percent-encoded). POST requests change state: when http.api_token
@@ -23,7 +28,9 @@
 // Thread-safety. handle() may be called from several threads at once.
 #pragma once
 
+#include <functional>
 #include <string>
+#include <vector>
 
 #include "config/options.h"
 #include "daemon/http_server.h"
@@ -32,10 +39,24 @@
 
 namespace plumbline {
 
+// What the daemon does for POST /api/snapshot and POST /api/reload.
+struct api_actions {
+  struct reload_result {
+    bool ok = false;
+    std::vector<std::string> errors;  // when refused: "FILE:LINE:COLUMN: message"
+    std::size_t streams = 0;
+    std::size_t kept_old = 0;
+    std::vector<std::string> notes;
+  };
+  // Empty when snapshots are off.
+  std::function<expected<std::string>()> snapshot;
+  std::function<reload_result()> reload;
+};
+
 class api {
  public:
   api(stream_table& streams, const daemon_metrics& metrics, const config::daemon_config& config,
-      bool http_is_loopback);
+      bool http_is_loopback, api_actions actions = {});
 
   http::response handle(const http::request& req) const;
 
@@ -50,6 +71,7 @@ class api {
   const daemon_metrics& metrics_;
   const config::daemon_config& config_;
   bool http_is_loopback_;
+  api_actions actions_;
 };
 
 }  // namespace plumbline

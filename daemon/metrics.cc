@@ -5,6 +5,7 @@
 
 #include <prometheus/text_serializer.h>
 
+#include <algorithm>
 #include <sstream>
 
 #include "core/alarm.h"
@@ -90,7 +91,9 @@ std::string daemon_metrics::render_text() const {
 
   auto alarm = family("plumbline_alarm", alarm_help, T::Gauge);
   auto raised = family("plumbline_alarms_raised_total",
-                       "Alarms raised on the stream since the daemon started.", T::Counter);
+                       "Alarms raised on the stream since it was first seen (kept across "
+                       "restarts by snapshots).",
+                       T::Counter);
   auto p_value = family("plumbline_p_value",
                         "p-value of the stream's last evaluation, per permutation test.", T::Gauge);
   auto statistic =
@@ -108,7 +111,9 @@ std::string daemon_metrics::render_text() const {
                        "Samples held in the stream's reference and recent windows.", T::Gauge);
   auto samples = family("plumbline_samples_total", "Samples accepted for the stream.", T::Counter);
   auto evaluations = family("plumbline_evaluations_total",
-                            "Evaluations of the stream since the daemon started.", T::Counter);
+                            "Evaluations of the stream since it was first seen (kept across "
+                            "restarts by snapshots).",
+                            T::Counter);
   auto last_sample = family("plumbline_last_sample_timestamp_seconds",
                             "Time of the stream's newest sample (its TIME field, or receipt "
                             "time), Unix seconds.",
@@ -190,6 +195,27 @@ std::string daemon_metrics::render_text() const {
   add(refused, {},
       static_cast<double>(ingest_.connections_refused.load(std::memory_order_relaxed)));
   out.push_back(std::move(refused));
+  if (state_ != nullptr) {
+    const double last = state_->last_good_time.load();
+    if (snapshots_on_ && last > 0) {
+      auto age = family("plumbline_snapshot_age_seconds",
+                        "Seconds since the newest good snapshot was written (absent while "
+                        "there is none, or snapshots are off).",
+                        T::Gauge);
+      add(age, {}, std::max(0.0, unix_now() - last));
+      out.push_back(std::move(age));
+    }
+    auto failures = family("plumbline_snapshot_failures_total",
+                           "Snapshot writes that failed since the daemon started.", T::Counter);
+    add(failures, {}, static_cast<double>(state_->failures.load()));
+    out.push_back(std::move(failures));
+    auto reload = family("plumbline_config_reload_success",
+                         "1 when the last configuration reload succeeded (or none was tried), 0 "
+                         "after a refused one until a good reload.",
+                         T::Gauge);
+    add(reload, {}, state_->reload_ok.load());
+    out.push_back(std::move(reload));
+  }
   auto info = family("plumbline_build_info", "Always 1; the version label says which build runs.",
                      T::Gauge);
   add(info, {{"version", version_}}, 1);

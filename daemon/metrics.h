@@ -16,7 +16,9 @@
 //                  (histograms),
 //                  plumbline_evaluations_coalesced_total, plumbline_evaluation_queue_length,
 //                  plumbline_streams, plumbline_streams_limit, plumbline_connections,
-//                  plumbline_connections_refused_total, plumbline_build_info{version}
+//                  plumbline_connections_refused_total, plumbline_build_info{version},
+//                  plumbline_snapshot_age_seconds, plumbline_snapshot_failures_total,
+//                  plumbline_config_reload_success
 //
 // How. The evaluation-time histogram is a prometheus-cpp metric in the
 // registry (workers observe into it). Everything else already lives in the
@@ -37,6 +39,7 @@
 
 #include "daemon/evaluator.h"
 #include "daemon/ingest.h"
+#include "daemon/snapshot.h"
 #include "daemon/stream_table.h"
 
 namespace plumbline {
@@ -56,6 +59,12 @@ class daemon_metrics {
 
   // REQUIRES: called before render() may run; the evaluator outlives this.
   void attach(const evaluator& eval) { eval_ = &eval; }
+  // The snapshot and reload status (outlives this); `snapshots_on` false
+  // leaves out the snapshot age.
+  void attach(const snapshot::status& st, bool snapshots_on) {
+    state_ = &st;
+    snapshots_on_ = snapshots_on;
+  }
 
   void observe_evaluation(double seconds, double latency) {
     evaluation_seconds_->Observe(seconds);
@@ -71,6 +80,8 @@ class daemon_metrics {
   const stream_table& streams_;
   const ingest_counters& ingest_;
   const evaluator* eval_ = nullptr;
+  const snapshot::status* state_ = nullptr;
+  bool snapshots_on_ = false;
   std::string version_;
   std::shared_ptr<prometheus::Registry> registry_;
   prometheus::Histogram* evaluation_seconds_;

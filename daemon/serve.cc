@@ -11,6 +11,7 @@
 #include <csignal>
 #include <iostream>
 #include <map>
+#include <mutex>
 #include <thread>
 
 #include "config/load.h"
@@ -23,6 +24,8 @@
 #include "daemon/ingest.h"
 #include "daemon/log.h"
 #include "daemon/metrics.h"
+#include "daemon/reload.h"
+#include "daemon/snapshot.h"
 #include "daemon/stream_table.h"
 
 namespace plumbline {
@@ -39,6 +42,8 @@ CLI::App* add_serve_command(CLI::App& app, serve_args& a) {
   cmd->add_option("--http", a.http, "HOST:PORT for metrics and the API (port 0 picks a free port)");
   cmd->add_option("--log-level", a.log_level, "debug, info, warn or error (overrides [log] level)")
       ->check(CLI::IsMember({"debug", "info", "warn", "error"}));
+  cmd->add_option("--data-dir", a.data_dir,
+                  "Directory for snapshots of the streams' state (overrides [state] data_dir)");
   return cmd;
 }
 
@@ -72,53 +77,20 @@ constexpr const char* caution =
 
 int run_serve(const serve_args& a, const std::string& version) {
   // Configuration.
-  config::daemon_config cfg;
-  if (a.config.empty()) {
-    cfg = config::default_config();
-  } else {
-    config::load_result loaded = config::load_config_file(a.config);
-    if (!loaded.config) {
-      for (const auto& e : loaded.errors)
-        std::cerr << e.str() << "\n";
-      std::cerr << "plumbline: " << a.config << ": configuration has " << loaded.errors.size()
-                << (loaded.errors.size() == 1 ? " error" : " errors") << "; not starting\n";
-      return 2;
-    }
-    cfg = std::move(*loaded.config);
+  const config_overrides overrides{a.ingest, a.http, a.data_dir};
+  prepared_config prepared = prepare_config(a.config, overrides);
+  if (!prepared.config) {
+    for (const auto& e : prepared.errors)
+      std::cerr << (e.starts_with("--") ? "plumbline: " : "") << e << "\n";
+    std::cerr << "plumbline: " << (a.config.empty() ? std::string() : a.config + ": ")
+              << "configuration has " << prepared.errors.size()
+              << (prepared.errors.size() == 1 ? " error" : " errors") << "; not starting\n";
+    return 2;
   }
-  for (auto [flag, text] : {std::pair{"--ingest", &a.ingest}, std::pair{"--http", &a.http}}) {
-    if (text->empty()) continue;
-    auto hp = config::parse_host_port(*text);
-    if (!hp) {
-      std::cerr << "plumbline: " << flag << ": " << hp.err().message << "\n";
-      return 2;
-    }
-    if (text == &a.ingest) {
-      cfg.ingest.tcp = hp.value();
-      cfg.ingest.udp = hp.value();
-    } else {
-      cfg.http.listen = hp.value();
-    }
-  }
+  const std::shared_ptr<const config::daemon_config> started = prepared.config;
+  const config::daemon_config& cfg = *started;
   const std::string level_text = a.log_level.empty() ? cfg.log.level : a.log_level;
   log::set_threshold(log::parse_level(level_text).value_or(log::level::info));
-
-  // File references, loaded once; streams of those groups copy them.
-  std::map<const config::stream_group*, csv_sample> references;
-  for (const auto& g : cfg.groups) {
-    if (g.settings.policy != reference_policy::file) continue;
-    auto s = read_csv_sample(g.reference_file);
-    if (!s) {
-      std::cerr << "plumbline: group '" << g.name << "': " << s.err().message << "\n";
-      return 2;
-    }
-    references.emplace(&g, std::move(s.value()));
-  }
-  for (auto& g : cfg.groups) {
-    auto it = references.find(&g);
-    if (it != references.end() && g.settings.dimension == 0)
-      g.settings.dimension = static_cast<uint32_t>(it->second.width);
-  }
 
   log::info("plumbline " + version + " starting; configuration: " +
             (a.config.empty() ? std::string("built-in defaults") : a.config) + "; " +
@@ -142,13 +114,31 @@ int run_serve(const serve_args& a, const std::string& version) {
 
   // State.
   ingest_counters counters;
-  stream_table streams(cfg, cfg.ingest.max_streams, [&](stream_entry& e) {
-    auto it = references.find(e.group);
-    if (it == references.end()) return;
-    auto ok = e.monitor.set_reference(it->second.values);
+  stream_table streams(started, cfg.ingest.max_streams, [](stream_entry& e) {
+    if (e.group->settings.policy != reference_policy::file) return;
+    auto ok = e.monitor.set_reference(e.group->reference_sample);
     if (!ok) log::error("stream " + e.name + ": reference file: " + ok.err().message);
   });
+  snapshot::status state_status;
+  std::unique_ptr<snapshot::snapshotter> snapshots;
+  if (!cfg.state.data_dir.empty()) {
+    snapshots = std::make_unique<snapshot::snapshotter>(
+        cfg.state.data_dir, streams, cfg.evaluation.seed, state_status,
+        [](int severity, const std::string& m) {
+          if (severity >= 2) {
+            log::error(m);
+          } else if (severity == 1) {
+            log::warn(m);
+          } else {
+            log::info(m);
+          }
+        });
+    snapshots->restore(unix_now());
+  } else {
+    log::info("no data directory ([state] data_dir or --data-dir): snapshots are off");
+  }
   daemon_metrics metrics(streams, counters, version);
+  metrics.attach(state_status, snapshots != nullptr);
   const unsigned cores = std::max(1u, std::thread::hardware_concurrency());
   const unsigned eval_threads = cfg.evaluation.threads != 0 ? cfg.evaluation.threads : cores;
   evaluator eval(eval_threads, [&](stream_entry& e, double seconds, double latency,
@@ -203,7 +193,49 @@ int run_serve(const serve_args& a, const std::string& version) {
     udp_server = std::move(u.value());
   }
   const bool http_loopback = http_at && http_at->address().is_loopback();
-  api routes(streams, metrics, cfg, http_loopback);
+  // Reloads: SIGHUP on the control thread and POST /api/reload on the HTTP
+  // thread, one at a time.
+  std::mutex reload_mu;
+  auto reload = [&](const std::string& why) -> api_actions::reload_result {
+    std::lock_guard lock(reload_mu);
+    api_actions::reload_result r;
+    log::info(why + ": re-reading " +
+              (a.config.empty() ? std::string("the built-in defaults") : a.config));
+    prepared_config next = prepare_config(a.config, overrides);
+    if (!next.config) {
+      for (const auto& e : next.errors)
+        log::error(e);
+      log::error("reload refused: the new configuration has " +
+                 std::to_string(next.errors.size()) +
+                 (next.errors.size() == 1 ? " error" : " errors") +
+                 "; still running on the previous one");
+      state_status.reload_ok.store(0);
+      r.errors = std::move(next.errors);
+      return r;
+    }
+    for (const auto& m : restart_only_changes(cfg, *next.config))
+      log::warn("reload: " + m);
+    if (a.log_level.empty())
+      log::set_threshold(log::parse_level(next.config->log.level).value_or(log::level::info));
+    const reload_outcome out = apply_config(streams, next.config, unix_now());
+    for (const auto& n : out.notes)
+      log::warn("reload: " + n);
+    state_status.reload_ok.store(1);
+    r.ok = true;
+    r.streams = out.streams;
+    r.kept_old = out.kept_old;
+    r.notes = out.notes;
+    log::info("reload done: " + std::to_string(next.config->groups.size()) + " stream group(s); " +
+              std::to_string(out.streams) + " stream(s), " + std::to_string(out.regrouped) +
+              " in another group, " + std::to_string(out.emptied) +
+              " emptied by a reference policy change, " + std::to_string(out.kept_old) +
+              " kept their old settings");
+    return r;
+  };
+  api_actions actions;
+  actions.reload = [&] { return reload("POST /api/reload"); };
+  if (snapshots) actions.snapshot = [&] { return snapshots->write_now(); };
+  api routes(streams, metrics, cfg, http_loopback, actions);
   std::unique_ptr<http::server> web;
   if (http_at) {
     http::server_limits hl;
@@ -226,15 +258,12 @@ int run_serve(const serve_args& a, const std::string& version) {
   // place before the ready line, so a stop request right after it is seen.
   asio::io_context control;
   asio::signal_set signals(control, SIGINT, SIGTERM);
-  // SIGHUP would end the process by default. This version cannot re-read
-  // its configuration while running, so it says so and carries on.
+  // SIGHUP re-reads the configuration (reload.h).
   asio::signal_set hangup(control, SIGHUP);
   std::function<void()> arm_hangup = [&] {
     hangup.async_wait([&](boost::system::error_code ec, int) {
       if (ec) return;
-      log::warn(
-          "received SIGHUP: this version does not reload its configuration while "
-          "running; restart the daemon to apply a changed configuration");
+      reload("received SIGHUP");
       arm_hangup();
     });
   };
@@ -271,12 +300,11 @@ int run_serve(const serve_args& a, const std::string& version) {
       if (ec || stopping) return;
       const double now = unix_now();
       streams.for_each([&](stream_entry& e) {
-        const double every = e.group->settings.every_seconds;
-        if (every <= 0) return;
         bool due = false;
         {
           std::lock_guard lock(e.mu);
-          if (e.monitor.ready() && now - e.last_trigger_time >= every) {
+          const double every = e.group->settings.every_seconds;
+          if (every > 0 && e.monitor.ready() && now - e.last_trigger_time >= every) {
             e.last_trigger_time = now;
             e.since_trigger = 0;
             due = true;
@@ -288,10 +316,24 @@ int run_serve(const serve_args& a, const std::string& version) {
     });
   };
   arm_tick();
+  // Periodic snapshots, on this thread.
+  asio::steady_timer snapshot_timer(control);
+  std::function<void()> arm_snapshot = [&] {
+    if (!snapshots || cfg.state.snapshot_interval_seconds <= 0) return;
+    snapshot_timer.expires_after(std::chrono::duration_cast<std::chrono::steady_clock::duration>(
+        std::chrono::duration<double>(cfg.state.snapshot_interval_seconds)));
+    snapshot_timer.async_wait([&](boost::system::error_code ec) {
+      if (ec || stopping) return;
+      snapshots->write_now();
+      arm_snapshot();
+    });
+  };
+  arm_snapshot();
   signals.async_wait([&](boost::system::error_code ec, int signo) {
     if (ec) return;
     stopping = true;
     tick.cancel();
+    snapshot_timer.cancel();
     hangup.cancel();
     log::info(std::string("received ") + (signo == SIGTERM ? "SIGTERM" : "SIGINT") +
               "; stopping: no new connections, draining what was sent");
@@ -307,6 +349,12 @@ int run_serve(const serve_args& a, const std::string& version) {
   for (auto& t : threads)
     t.join();
   eval.stop(true);
+  // Nothing is ingested or evaluated any more: this snapshot holds every
+  // sample received, so a graceful stop loses nothing.
+  if (snapshots) {
+    auto written = snapshots->write_now();
+    if (written) log::info("final snapshot written: " + written.value());
+  }
   if (web) web->stop();
   http_guard.reset();
   http_thread.join();

@@ -41,13 +41,16 @@ uint64_t stream_name_hash(std::string_view name) {
   return h;
 }
 
-stream_entry::stream_entry(std::string name_, uint64_t hash_, const config::stream_group& group_,
-                           uint32_t dimension_, uint64_t daemon_seed)
+stream_entry::stream_entry(std::string name_, uint64_t hash_,
+                           std::shared_ptr<const config::daemon_config> config_,
+                           const config::stream_group& group_, uint32_t dimension_,
+                           uint64_t daemon_seed)
     : name(std::move(name_)),
       hash(hash_),
-      group(&group_),
       dimension(dimension_),
       seed(stream_seed(daemon_seed, name)),
+      config(std::move(config_)),
+      group(&group_),
       monitor(group_.settings, dimension_),
       gen(seed) {}
 
@@ -59,7 +62,14 @@ std::size_t table_size(std::size_t max_streams) {
 
 stream_table::stream_table(const config::daemon_config& config, std::size_t max_streams,
                            on_create hook)
-    : config_(config),
+    : stream_table(std::shared_ptr<const config::daemon_config>(
+                       std::shared_ptr<const config::daemon_config>(), &config),
+                   max_streams, std::move(hook)) {}
+
+stream_table::stream_table(std::shared_ptr<const config::daemon_config> config,
+                           std::size_t max_streams, on_create hook)
+    : config_(std::move(config)),
+      seed_(config_->evaluation.seed),
       max_streams_(max_streams),
       mask_(table_size(max_streams) - 1),
       slots_(new std::atomic<stream_entry*>[mask_ + 1]),
@@ -75,6 +85,16 @@ stream_table::~stream_table() {
   const std::size_t n = size();
   for (std::size_t i = 0; i < n; ++i)
     delete entries_[i].load(std::memory_order_relaxed);
+}
+
+std::shared_ptr<const config::daemon_config> stream_table::config() const {
+  std::lock_guard lock(create_mu_);
+  return config_;
+}
+
+void stream_table::set_config(std::shared_ptr<const config::daemon_config> config) {
+  std::lock_guard lock(create_mu_);
+  config_ = std::move(config);
 }
 
 stream_entry* stream_table::find(std::string_view name, uint64_t hash) const {
@@ -94,10 +114,10 @@ stream_table::lookup stream_table::find_or_create(std::string_view name, uint64_
   if (stream_entry* e = find(name, hash)) return {e, {}};
   const std::size_t n = count_.load(std::memory_order_relaxed);
   if (n >= max_streams_) return {nullptr, wire::reject_reason::too_many_streams};
-  const config::stream_group* group = config::find_group(config_, name);
+  const config::stream_group* group = config::find_group(*config_, name);
   if (group == nullptr) return {nullptr, wire::reject_reason::unmatched_stream};
   const uint32_t dim = group->settings.dimension != 0 ? group->settings.dimension : dimension;
-  auto* e = new stream_entry(std::string(name), hash, *group, dim, config_.evaluation.seed);
+  auto* e = new stream_entry(std::string(name), hash, config_, *group, dim, seed_);
   if (hook_) hook_(*e);
   std::size_t i = hash & mask_;
   while (slots_[i].load(std::memory_order_relaxed) != nullptr)

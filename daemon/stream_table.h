@@ -9,10 +9,19 @@
 // dimension from the group or, when the group leaves it open, from that first
 // record. Streams are never removed while the daemon runs.
 //
-// Thread-safety. find(), find_or_create(), size() and for_each() may be called
-// from any thread. A stream_entry's `name`, `hash`, `group`, `dimension` and
-// `seed` are constant after creation; everything else in it is guarded by its
-// `mu`, except the atomics, which say how they are used.
+// Reload. A configuration reload (daemon/reload.h) gives the table a new
+// configuration for streams created from then on (set_config) and moves each
+// existing entry to its new group under the entry's lock. An entry holds a
+// shared_ptr to the configuration its `group` points into, so a replaced
+// configuration lives as long as any entry still uses it. The ingest path is
+// unchanged by this: it reads `group` under the entry's lock, which it takes
+// for the push anyway.
+//
+// Thread-safety. find(), find_or_create(), size(), for_each(), config() and
+// set_config() may be called from any thread. A stream_entry's `name`,
+// `hash`, `dimension` and `seed` are constant after creation; everything else
+// in it (`config` and `group` included) is guarded by its `mu`, except the
+// atomics, which say how they are used.
 //
 // Invariants. size() <= max_streams(); an entry, once published, stays at the
 // same address until the table is destroyed.
@@ -41,17 +50,21 @@ uint64_t stream_name_hash(std::string_view name);
 enum class eval_state : uint8_t { idle, queued, running, running_again };
 
 struct stream_entry {
-  stream_entry(std::string name_, uint64_t hash_, const config::stream_group& group_,
-               uint32_t dimension_, uint64_t daemon_seed);
+  // REQUIRES: group_ points into *config_.
+  stream_entry(std::string name_, uint64_t hash_,
+               std::shared_ptr<const config::daemon_config> config_,
+               const config::stream_group& group_, uint32_t dimension_, uint64_t daemon_seed);
 
   const std::string name;
   const uint64_t hash;
-  const config::stream_group* const group;
   const uint32_t dimension;
   const uint64_t seed;  // stream_seed(daemon seed, name)
 
   mutable std::mutex mu;
-  // Guarded by mu. The fields every record updates come first, beside mu.
+  // Guarded by mu. `group` points into *config, which this keeps alive. The
+  // fields every record reads or updates come first, beside mu.
+  std::shared_ptr<const config::daemon_config> config;
+  const config::stream_group* group;
   uint64_t since_trigger = 0;    // samples since the last count trigger
   bool primed = false;           // the windows were full at some push since start/rebaseline
   double last_sample_time = 0;   // the newest record's time, Unix seconds
@@ -61,8 +74,10 @@ struct stream_entry {
   double last_evaluation_time = 0;  // Unix seconds; 0 = never
   double last_evaluation_seconds = 0;
 
-  // Used only by the one evaluation that is running (the scheduling state
-  // guarantees there is at most one per stream).
+  // The stream's generator. Guarded by mu: an evaluation copies it when it
+  // captures the windows and stores the advanced copy back when it records
+  // its result, so a snapshot always sees a generator that matches the
+  // windows and results it sees.
   rng gen;
 
   std::atomic<eval_state> state{eval_state::idle};
@@ -78,7 +93,12 @@ class stream_table {
   // thread can see it (the daemon loads file references here).
   using on_create = std::function<void(stream_entry&)>;
 
-  // REQUIRES: 1 <= max_streams <= max_stream_limit; `config` outlives the table.
+  // REQUIRES: 1 <= max_streams <= max_stream_limit. The evaluation seed of
+  // `config` seeds every stream, also after set_config().
+  stream_table(std::shared_ptr<const config::daemon_config> config, std::size_t max_streams,
+               on_create hook = {});
+  // The same with a configuration that the caller keeps alive (it must
+  // outlive the table).
   stream_table(const config::daemon_config& config, std::size_t max_streams, on_create hook = {});
   ~stream_table();
   stream_table(const stream_table&) = delete;
@@ -97,6 +117,11 @@ class stream_table {
   // of values) unless its group fixes one. Fails with too_many_streams at the
   // limit, and unmatched_stream when no group's pattern matches.
   lookup find_or_create(std::string_view name, uint64_t hash, uint32_t dimension);
+
+  // The configuration new streams take their group from.
+  std::shared_ptr<const config::daemon_config> config() const;
+  // Replaces it (a reload). Existing entries are not touched here.
+  void set_config(std::shared_ptr<const config::daemon_config> config);
 
   std::size_t size() const { return count_.load(std::memory_order_acquire); }
   std::size_t max_streams() const { return max_streams_; }
@@ -121,13 +146,14 @@ class stream_table {
   stream_entry* find(std::string_view name) const { return find(name, stream_name_hash(name)); }
 
  private:
-  const config::daemon_config& config_;
+  std::shared_ptr<const config::daemon_config> config_;  // guarded by create_mu_
+  const uint64_t seed_;
   const std::size_t max_streams_;
   const std::size_t mask_;
   std::unique_ptr<std::atomic<stream_entry*>[]> slots_;
   std::unique_ptr<std::atomic<stream_entry*>[]> entries_;  // creation order, owning
   std::atomic<std::size_t> count_{0};
-  std::mutex create_mu_;
+  mutable std::mutex create_mu_;
   on_create hook_;
 };
 

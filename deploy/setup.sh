@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # deploy/setup.sh: install, build, test and demonstrate plumbline on Debian 12.
 #
-# Usage: bash deploy/setup.sh deps|build|demo|test|sanitize|tsan|install
+# Usage: bash deploy/setup.sh deps|build|demo|test|sanitize|tsan|fuzz|install
 #
 #   deps      install the Debian packages the build and the tests need
 #             (skipped when all of them are installed already)
@@ -20,6 +20,10 @@
 #             configuration (kept if present), the systemd unit and the
 #             Prometheus files; then `systemctl daemon-reload` when systemd
 #             runs. Starts nothing: it prints the command that does.
+#   fuzz      deps, then both libFuzzer targets (tests/fuzz/) built with
+#             clang-14 in build-fuzz/, each run for a bounded time: the
+#             snapshot loader for FUZZ_SNAPSHOT_SECONDS (default 60), the
+#             wire format for FUZZ_WIRE_SECONDS (default 30)
 #
 # Runs as root on a fresh Debian 12 machine, asks nothing, and can be run
 # again at any time: each step only does what is still missing. Works from
@@ -61,6 +65,7 @@ commands:
   tsan      deps, then build in build-tsan/ with ThreadSanitizer and run the daemon's tests
   install   build, then install under $PLUMBLINE_PREFIX (default /usr/local) with the
             systemd unit; see README.md, "Running under systemd"
+  fuzz      deps, then build the libFuzzer targets in build-fuzz/ and run each for a bounded time
 EOF
 }
 
@@ -328,6 +333,64 @@ cmd_install() {
   fi
 }
 
+# Compiles one source for the fuzz build into build-fuzz/obj/, unless the
+# object is newer than the source and every header (a full rebuild is cheap
+# enough that finer tracking is not worth it).
+fuzz_cxx=(clang++-14 -std=c++20 -O1 -g -fno-omit-frame-pointer -ffp-contract=off
+  -fsanitize=address,undefined -fno-sanitize-recover=undefined -I. -isystem /usr/include/eigen3)
+
+fuzz_object() {
+  local src="$1" flags="$2" obj
+  obj="build-fuzz/obj/$(tr '/' '_' <<<"${src%.cc}").o"
+  if [[ ! -f "$obj" || -n "$(find "$src" core daemon -name '*.h' -newer "$obj" -print -quit; \
+    find "$src" -newer "$obj" -print -quit)" ]]; then
+    run "${fuzz_cxx[@]}" "$flags" -c "$src" -o "$obj" >&2
+  fi
+  printf '%s\n' "$obj"
+}
+
+# Runs a fuzz target for $2 seconds on corpus $3 (seeds in $4, if any). A
+# crash or an invariant failure makes libFuzzer exit non-zero and keep the
+# input as build-fuzz/crash-*.
+fuzz_run() {
+  local target="$1" seconds="$2" corpus="$3" max_len="$4"
+  mkdir -p "$corpus"
+  say "fuzz: $target for $seconds s (corpus $corpus)"
+  (cd build-fuzz && run "./$target" -max_total_time="$seconds" -max_len="$max_len" \
+    -rss_limit_mb=2048 -malloc_limit_mb=1024 -timeout=10 -print_final_stats=1 \
+    "${corpus#build-fuzz/}")
+}
+
+cmd_fuzz() {
+  cmd_deps
+  local snapshot_seconds="${FUZZ_SNAPSHOT_SECONDS:-60}" wire_seconds="${FUZZ_WIRE_SECONDS:-30}"
+  mkdir -p build-fuzz/obj
+  say "fuzz: compiling with clang-14 (AddressSanitizer, UndefinedBehaviorSanitizer, libFuzzer)"
+  local -a core_objs
+  local src
+  for src in core/*.cc daemon/snapshot_format.cc; do
+    core_objs+=("$(fuzz_object "$src" -fsanitize=fuzzer-no-link)")
+  done
+  local fuzz_obj seeds_obj wire_objs
+  fuzz_obj="$(fuzz_object tests/fuzz/snapshot_fuzz.cc -fsanitize=fuzzer-no-link)"
+  seeds_obj="$(fuzz_object tests/fuzz/snapshot_seeds.cc -fsanitize=fuzzer-no-link)"
+  run "${fuzz_cxx[@]}" -fsanitize=fuzzer "${core_objs[@]}" "$fuzz_obj" -o build-fuzz/snapshot_fuzz
+  run "${fuzz_cxx[@]}" -fsanitize=fuzzer-no-link "${core_objs[@]}" "$seeds_obj" \
+    -o build-fuzz/snapshot_seeds
+  wire_objs=("$(fuzz_object daemon/wire.cc -fsanitize=fuzzer-no-link)"
+    "$(fuzz_object tests/fuzz/wire_fuzz.cc -fsanitize=fuzzer-no-link)")
+  run "${fuzz_cxx[@]}" -fsanitize=fuzzer "${wire_objs[@]}" -o build-fuzz/wire_fuzz
+  # Seeds: snapshots written by the encoder the daemon uses; for the wire
+  # format, the example of tests/fuzz/README.md.
+  mkdir -p build-fuzz/snapshot_corpus build-fuzz/wire_corpus
+  run build-fuzz/snapshot_seeds build-fuzz/snapshot_corpus
+  printf '\x00\x40\x12\x34\x56\x78larkspur/line_b/fill_4,1764633600.25,502.13\r\n# c\n\nlarkspur/x,1985-04-12T23:20:50.52Z,1,2\nq' \
+    >build-fuzz/wire_corpus/seed1
+  fuzz_run snapshot_fuzz "$snapshot_seconds" build-fuzz/snapshot_corpus 65536
+  fuzz_run wire_fuzz "$wire_seconds" build-fuzz/wire_corpus 4096
+  say "fuzz: done; no crash and no violated invariant"
+}
+
 main() {
   if (($# != 1)); then
     usage
@@ -341,6 +404,7 @@ main() {
     sanitize) cmd_sanitize ;;
     tsan) cmd_tsan ;;
     install) cmd_install ;;
+    fuzz) cmd_fuzz ;;
     -h | --help | help)
       usage
       exit 0

@@ -512,7 +512,7 @@ TEST_CASE("config: an unknown section is an error at its name", "[config]") {
         "larkspur.toml:1:3: unknown section [[groups]] (did you mean [[group]]?)");
   CHECK(only_error("[alarms]\nx = 1\n") ==
         "larkspur.toml:1:2: unknown section [alarms] (sections: [ingest], [http], [evaluation], "
-        "[log], [[group]])");
+        "[state], [log], [[group]])");
 }
 
 TEST_CASE("config: groups must be an array of tables", "[config]") {
