@@ -1,13 +1,23 @@
 #!/usr/bin/env bash
 # deploy/setup.sh: install, build, test and demonstrate plumbline on Debian 12.
 #
-# Usage: bash deploy/setup.sh deps|build|demo|test|sanitize|tsan|fuzz|install
+# Usage: bash deploy/setup.sh deps|build|demo|demo-run|demo-compare|test|sanitize|tsan|fuzz|install
 #
 #   deps      install the Debian packages the build and the tests need
 #             (skipped when all of them are installed already)
 #   build     deps, then a RelWithDebInfo build in build/
-#   demo      build, then compare the demo data in simulator/examples/, then
-#             run `plumbline serve` briefly and feed it the same data live
+#   demo      build, then demo-run
+#   demo-run  the live demo on an existing build, nothing built or installed:
+#             `plumbline serve` (config/bottling_demo.toml, loopback ports 7301/7302
+#             or free ones) and `plumbline-sim send` with
+#             simulator/scenarios/bottling_demo.toml in real time; a status
+#             line every 15 simulated seconds, the alarm when it is raised,
+#             and a score at the end or on Ctrl-C. Environment:
+#             PLUMBLINE_BUILD_DIR (default build), PLUMBLINE_DEMO_SPEED
+#             (simulated seconds per wall second, default 1) and
+#             PLUMBLINE_DEMO_SECONDS (stop after this many wall seconds)
+#   demo-compare  build, then compare the demo data in simulator/examples/,
+#             then run `plumbline serve` briefly and feed it the same data live
 #   test      build, then run every test suite with ctest (unit, reference,
 #             calibration, cli, integration, deploy and e2e)
 #   sanitize  deps, then an AddressSanitizer + UndefinedBehaviorSanitizer
@@ -59,7 +69,12 @@ usage: bash deploy/setup.sh COMMAND
 commands:
   deps      install the Debian 12 packages plumbline needs (quick when present)
   build     deps, then build in build/ (RelWithDebInfo)
-  demo      build, then run `plumbline compare` on the demo data, then the daemon live
+  demo      build, then demo-run
+  demo-run  the live demo on the build in $PLUMBLINE_BUILD_DIR (default build/):
+            plumbline serve and plumbline-sim send with the bottling scenario, in
+            real time (PLUMBLINE_DEMO_SPEED=X for X times faster,
+            PLUMBLINE_DEMO_SECONDS=S to stop after S seconds); Ctrl-C stops it
+  demo-compare  build, then run `plumbline compare` on the demo data, then the daemon live
   test      build, then run all test suites (ctest)
   sanitize  deps, then build in build-asan/ with ASan + UBSan and run the unit suite
   tsan      deps, then build in build-tsan/ with ThreadSanitizer and run the daemon's tests
@@ -151,7 +166,9 @@ cmd_build() {
   say "build: done; the binary is build/daemon/plumbline"
 }
 
-cmd_demo() {
+# `demo-compare`: build, then `plumbline compare` on the demo data in
+# simulator/examples/, then a short live run of the daemon on the same data.
+cmd_demo_compare() {
   cmd_build
   local bin=./build/daemon/plumbline
   echo
@@ -262,6 +279,276 @@ print("  %-24s alarm %-5s  evaluations %-3d  %s p = %.4g  drift %s %+.3f g [%+.3
   trap - EXIT
   rm -rf "$dir"
   say "Stopped the daemon (SIGTERM). Run it yourself: $bin serve --config config/demo.toml"
+}
+
+# ---- The live demo: `plumbline serve` and `plumbline-sim send` together ----
+
+demo_scenario=simulator/scenarios/bottling_demo.toml
+demo_config=config/bottling_demo.toml
+
+# `demo`: build, then the live demo.
+cmd_demo() {
+  cmd_build
+  echo
+  cmd_demo_run
+}
+
+# The first [[fault]]'s sensor (the faulted stream) and start of a scenario.
+scenario_fault_stream() { sed -n 's/^sensor = "\([^"]*\)".*/\1/p' "$1" | head -n 1; }
+scenario_fault_start() {
+  awk '/^\[\[fault\]\]/ { f = 1 } f && /^start_seconds = / { print $3; exit }' "$1"
+}
+
+# Prints a whole number of seconds as "M min S s".
+min_sec() { printf '%d min %02d s' $(($1 / 60)) $(($1 % 60)); }
+
+# The stream list from the daemon's API, digested by /usr/bin/python3 (the
+# JSON parser at hand): one line per stream, "NAME ON|off P_VALUE". Prints
+# nothing when the daemon does not answer.
+api_streams_digest() {
+  local http="$1"
+  (http_get "$http" "/api/streams?limit=1000") 2>/dev/null | /usr/bin/python3 -c '
+import json, sys
+try:
+    j = json.load(sys.stdin)
+except ValueError:
+    sys.exit(0)
+for s in j["streams"]:
+    print(s["name"], "ON" if s["alarm"] else "off", s.get("p_value", "-"))' 2>/dev/null || true
+}
+
+# One stream's last p-value and drift band, and its newest raised alarm
+# event, from the daemon's API, on one line: "P LOWER ESTIMATE UPPER
+# QUANTITY RAISED_TIME RAISED_P RAISED_LOWER RAISED_ESTIMATE RAISED_UPPER"
+# ("-" where there is none). Prints nothing when the daemon does not answer.
+api_stream_digest() {
+  local http="$1" stream="$2"
+  (http_get "$http" "/api/streams/$stream") 2>/dev/null | /usr/bin/python3 -c '
+import json, sys
+try:
+    j = json.load(sys.stdin)
+except ValueError:
+    sys.exit(0)
+r = j.get("last_result") or {}
+t = (r.get("tests") or [{}])[0]
+i = r.get("interval") or {}
+raised = [e for e in j["alarm"]["history"] if e["kind"] == "raised"]
+e = raised[-1] if raised else {}
+f = lambda v: "-" if v is None else "%.4g" % v
+print(f(t.get("p_value")), f(i.get("lower")), f(i.get("estimate")), f(i.get("upper")),
+      i.get("quantity", "-"), e.get("time", "-"), f(e.get("p_value")), f(e.get("lower")),
+      f(e.get("estimate")), f(e.get("upper")))' 2>/dev/null || true
+}
+
+# True while PID runs (and is not a zombie of ours).
+alive() { kill -0 "$1" 2>/dev/null; }
+
+# Sends SIGTERM to PID, a child of this shell, waits for it (at most 15 s,
+# then SIGKILL) and sets stopped_code to its exit code. (Not in a $(...)
+# subshell: only this shell can wait for its children.)
+stop_pid() {
+  local pid="$1" i
+  stopped_code=0
+  if alive "$pid"; then kill -TERM "$pid" 2>/dev/null || true; fi
+  for ((i = 0; i < 150; i++)); do
+    alive "$pid" || break
+    # A stopped child shows as a zombie until it is waited for.
+    [[ "$(cut -d' ' -f3 "/proc/$pid/stat" 2>/dev/null)" == Z ]] && break
+    sleep 0.1
+  done
+  if alive "$pid" && [[ "$(cut -d' ' -f3 "/proc/$pid/stat" 2>/dev/null)" != Z ]]; then
+    kill -KILL "$pid" 2>/dev/null || true
+  fi
+  wait "$pid" 2>/dev/null || stopped_code=$?
+}
+
+# Starts `plumbline serve` with $demo_config at INGEST and HTTP in its
+# own session (so that a Ctrl-C reaches this script alone, which then stops
+# it in order), and waits for its ready line. Sets daemon_pid and ready;
+# returns 1 when the daemon exited without one.
+start_daemon() {
+  local bin="$1" dir="$2" ingest="$3" http="$4" i
+  ready=""
+  setsid "$bin" serve --config "$demo_config" --ingest "$ingest" --http "$http" >"$dir/ready" 2>"$dir/daemon.log" &
+  daemon_pid=$!
+  for ((i = 0; i < 200; i++)); do
+    ready="$(head -n1 "$dir/ready" 2>/dev/null || true)"
+    [[ -n "$ready" ]] && return 0
+    alive "$daemon_pid" || break
+    sleep 0.1
+  done
+  wait "$daemon_pid" 2>/dev/null || true
+  return 1
+}
+
+# `demo-run`: the live demo on an existing build ($PLUMBLINE_BUILD_DIR,
+# default build/), without building or installing anything.
+#
+#   PLUMBLINE_DEMO_SPEED    simulated seconds per wall second (default 1:
+#                           real time, 10 minutes)
+#   PLUMBLINE_DEMO_SECONDS  stop after this many wall seconds, as on Ctrl-C
+#                           (default: when the scenario has been sent)
+cmd_demo_run() {
+  local build="${PLUMBLINE_BUILD_DIR:-build}"
+  local speed="${PLUMBLINE_DEMO_SPEED:-1}" limit="${PLUMBLINE_DEMO_SECONDS:-0}"
+  local bin="$build/daemon/plumbline" sim="$build/simulator/plumbline-sim"
+  local f
+  for f in "$bin" "$sim"; do
+    if [[ ! -x "$f" ]]; then
+      echo "setup.sh: $f is missing; run 'bash deploy/setup.sh build' first" \
+        "(or set PLUMBLINE_BUILD_DIR to a build directory)" >&2
+      exit 1
+    fi
+  done
+  if ! [[ "$speed" =~ ^[0-9]+$ ]] || ((speed < 1 || speed > 1000)); then
+    echo "setup.sh: PLUMBLINE_DEMO_SPEED must be a whole number from 1 to 1000, got '$speed'" >&2
+    exit 2
+  fi
+  if ! [[ "$limit" =~ ^[0-9]+$ ]]; then
+    echo "setup.sh: PLUMBLINE_DEMO_SECONDS must be a whole number of seconds, got '$limit'" >&2
+    exit 2
+  fi
+  local faulted fault_start
+  faulted="$(scenario_fault_stream "$demo_scenario")"
+  fault_start="$(scenario_fault_start "$demo_scenario")"
+  fault_start="${fault_start%%.*}"
+
+  local dir
+  dir="$(mktemp -d)"
+  daemon_pid="" sim_pid=""
+  # Whatever happens, nothing this demo started outlives it.
+  trap 'for p in $sim_pid $daemon_pid; do kill -TERM "$p" 2>/dev/null || true; done; rm -rf "$dir"' EXIT
+  # Ctrl-C (or SIGTERM) asks the loop below to stop both processes in order
+  # and print the summary.
+  local stop=0 reason=""
+  trap 'stop=1' INT TERM
+
+  say "demo: Wrenfield Springs, an invented bottling plant (the data is invented, for demos)."
+  say "demo: two lines, each with a filler (fill volume, mL), a capper (cap torque, N m) and a"
+  say "demo: labeller (label offset, mm), every sensor 5 times a second: 6 streams."
+  say "demo: starting plumbline serve with $demo_config (the built-in defaults, and a"
+  say "demo: practical tolerance per station: 0.3 mL, 0.05 N m, 0.2 mm)"
+  if ! start_daemon "$bin" "$dir" 127.0.0.1:7301 127.0.0.1:7302; then
+    say "demo: ports 7301/7302 are not free; using free loopback ports instead"
+    if ! start_daemon "$bin" "$dir" 127.0.0.1:0 127.0.0.1:0; then
+      echo "setup.sh: the daemon did not start; its log:" >&2
+      cat "$dir/daemon.log" >&2
+      exit 1
+    fi
+  fi
+  local tcp http
+  tcp="$(sed -E 's/.*ingest_tcp=[^ ]*:([0-9]+).*/\1/' <<<"$ready")"
+  http="$(sed -E 's/.*http=[^ ]*:([0-9]+).*/\1/' <<<"$ready")"
+  say "demo: started plumbline serve (pid $daemon_pid): $ready"
+
+  setsid "$sim" send --scenario "$demo_scenario" --to "127.0.0.1:$tcp" --speed "$speed" \
+    --truth "$dir/truth.json" 2>"$dir/sim.log" &
+  sim_pid=$!
+  local started=$SECONDS started_epoch
+  started_epoch="$(date +%s)"
+  say "demo: started plumbline-sim send (pid $sim_pid): $demo_scenario at speed $speed" \
+    "(simulated seconds per wall second)"
+  echo
+  say "Where to look:"
+  say "  metrics (Prometheus text):  http://127.0.0.1:$http/metrics"
+  say "  the faulted stream:         http://127.0.0.1:$http/api/streams/$faulted"
+  say "  all streams:                http://127.0.0.1:$http/api/streams"
+  local in_s=$((180 / speed))
+  say "What to expect: the reference windows are full after 100 s, the first evaluations run"
+  say "  at 120 s, and at ${fault_start} s the filler of line 1 starts over-filling by 1.0 mL."
+  say "  An alarm follows about three minutes in, on $faulted only,"
+  say "  with its drift interval (mean-diff, in mL). The run lasts $((600 / speed)) s of wall time"
+  say "  (10 simulated minutes); the alarm comes about $(min_sec "$in_s") in. Ctrl-C stops it earlier."
+  echo
+
+  # From here on a failing step must not end the script before both
+  # processes are stopped: a Ctrl-C also ends the command running then.
+  set +e
+  local status_every=$(((15 + speed - 1) / speed)) last_status=$SECONDS name state p digest at
+  local -a d
+  local -A announced=()
+  while ((stop == 0)); do
+    sleep 1 || true
+    ((stop == 0)) || break
+    if ! alive "$daemon_pid"; then
+      reason="the daemon exited on its own"
+      break
+    fi
+    digest="$(api_streams_digest "$http")"
+    while read -r name state p; do
+      [[ -n "$name" ]] || continue
+      if [[ "$state" == off && "${announced[$name]:-}" == on ]]; then
+        announced[$name]=cleared
+        say "alarm cleared on $name, $(min_sec $((SECONDS - started))) after the start"
+      fi
+      [[ "$state" == ON && "${announced[$name]:-}" != on ]] || continue
+      announced[$name]=on
+      read -r -a d <<<"$(api_stream_digest "$http" "$name")"
+      at="-"
+      if [[ "${d[5]:-"-"}" != "-" ]]; then
+        at=$((${d[5]%%.*} - started_epoch))
+        at="$(min_sec "$at") after the start (about $((at * speed)) simulated s)"
+      fi
+      say "ALARM raised on $name, $at: p = ${d[6]:-"-"}," \
+        "drift ${d[4]:-"-"} ${d[8]:-"-"} [${d[7]:-"-"}, ${d[9]:-"-"}]"
+    done <<<"$digest"
+    if ((SECONDS - last_status >= status_every)); then
+      last_status=$SECONDS
+      local progress on
+      progress="$(grep -o '[0-9.]* of [0-9.]* simulated s' "$dir/sim.log" | tail -n1 || true)"
+      on="$(awk '$2 == "ON" { printf "%s%s", sep, $1; sep = "," }' <<<"$digest")"
+      read -r -a d <<<"$(api_stream_digest "$http" "$faulted")"
+      local last="no evaluation yet (windows filling)"
+      if [[ "${d[0]:-"-"}" != "-" ]]; then
+        last="p = ${d[0]}, drift ${d[4]:-"-"} ${d[2]:-"-"} [${d[1]:-"-"}, ${d[3]:-"-"}]"
+      fi
+      say "status $(min_sec $((SECONDS - started))): sent ${progress:-0 simulated s};" \
+        "$faulted $last; alarms: ${on:-none}"
+    fi
+    if ! alive "$sim_pid" || [[ "$(cut -d' ' -f3 "/proc/$sim_pid/stat" 2>/dev/null)" == Z ]]; then
+      reason="the scenario has been sent"
+      break
+    fi
+    if ((limit > 0 && SECONDS - started >= limit)); then
+      reason="PLUMBLINE_DEMO_SECONDS=$limit reached"
+      break
+    fi
+  done
+  trap - INT TERM
+  set -e
+  [[ -n "$reason" ]] || reason="interrupted"
+  echo
+  say "demo: stopping ($reason)"
+  local daemon_code
+  stop_pid "$sim_pid"
+  say "demo: plumbline-sim send (pid $sim_pid) stopped, exit $stopped_code" \
+    "(0: it sent the whole scenario; 1: stopped early)"
+  tail -n 1 "$dir/sim.log" | sed 's/^/  /'
+  if alive "$daemon_pid"; then
+    echo
+    say "Summary: the daemon's alarms scored against the scenario's ground truth"
+    "$sim" score --truth "$dir/truth.json" --daemon "127.0.0.1:$http" | sed 's/^/  /; s/^ *$//' || true
+    if ((stopped_code != 0)); then
+      say "(stopped early: the score covers the whole 10-minute scenario, so a fault" \
+        "the run had not reached shows as missed)"
+    fi
+  fi
+  stop_pid "$daemon_pid"
+  daemon_code=$stopped_code
+  say "demo: plumbline serve (pid $daemon_pid) stopped, exit $daemon_code"
+  sim_pid="" daemon_pid=""
+  trap - EXIT
+  if ((daemon_code != 0)); then
+    echo "setup.sh: the daemon did not exit 0; its log:" >&2
+    cat "$dir/daemon.log" >&2
+    rm -rf "$dir"
+    exit 1
+  fi
+  local alarms=("${!announced[@]}")
+  say "demo: alarms raised on: ${alarms[*]:-none}"
+  say "demo: done. Run it yourself: $bin serve --config $demo_config, then" \
+    "$sim send --scenario $demo_scenario --to 127.0.0.1:7301. Results are advisory: they do not replace site quality procedures."
+  rm -rf "$dir"
 }
 
 cmd_test() {
@@ -400,6 +687,8 @@ main() {
     deps) cmd_deps ;;
     build) cmd_build ;;
     demo) cmd_demo ;;
+    demo-run) cmd_demo_run ;;
+    demo-compare) cmd_demo_compare ;;
     test) cmd_test ;;
     sanitize) cmd_sanitize ;;
     tsan) cmd_tsan ;;

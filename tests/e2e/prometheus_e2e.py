@@ -1,8 +1,9 @@
 #!/usr/bin/python3
 """prometheus_e2e.py: a real Prometheus server scraping a real `plumbline serve`.
 
-    prometheus_e2e.py --plumbline BIN --rules plumbline_rules.yml
-                      --scrape-config prometheus.yml [--deadline SECONDS]
+    prometheus_e2e.py --plumbline BIN --plumbline-sim BIN --scenario FILE
+                      --rules plumbline_rules.yml --scrape-config prometheus.yml
+                      [--speed X] [--deadline SECONDS]
 
 The test starts, on loopback and free ports:
 
@@ -17,14 +18,16 @@ The test starts, on loopback and free ports:
      shortened to FOR_HOLD (a test-only copy: the shipped holds are minutes).
      Everything else in the rules is as shipped.
 
-It then feeds four filler heads of the invented Larkspur Dairy's cup line B
-(feed_streams below; invented data), one of them with a step shift after its
-baseline, and asks Prometheus's HTTP API until the PlumblineAlarm alert is
-firing for the faulted head. Throughout, no PlumblineAlarm alert (pending or
+It then runs `plumbline-sim send` with --scenario (fillers_step.toml: four
+filler heads of the invented Larkspur Dairy's cup line B, invented data, one
+of them with a step shift after its baseline) at --speed simulated seconds
+per wall second, and asks Prometheus's HTTP API until the PlumblineAlarm
+alert is firing for the faulted head. Throughout, no PlumblineAlarm alert (pending or
 firing) may appear for another head, and after it fires the others must stay
 inactive for a few more rule evaluations. Last, the drift band series
 plumbline_drift_lower and plumbline_drift_upper must be stored for the
-faulted head, with a band above zero (the injected shift is positive).
+faulted head, with a band above zero (the injected shift is positive), and
+`plumbline-sim score` must find the fault detected and no false alarm.
 
 Every process is started and stopped here, by PID: SIGTERM, a bounded wait,
 then SIGKILL. The daemon must exit 0 on SIGTERM. The temporary directory is
@@ -33,7 +36,6 @@ removed. The whole run is bounded by --deadline.
 import argparse
 import json
 import os
-import random
 import selectors
 import shutil
 import signal
@@ -49,8 +51,10 @@ import urllib.request
 import yaml  # Debian's python3-yaml
 
 FOR_HOLD = "3s"  # test-only `for:` of every rule (shipped: minutes)
-STREAMS = ["larkspur/line_b/fill_%d" % i for i in (1, 2, 3, 4)]
-FAULTED = "larkspur/line_b/fill_3"
+# The streams of fillers_step.toml; the test reads its fault from the truth
+# file that `plumbline-sim send` writes, and checks it is this one.
+STREAMS = ["larkspur.line_b.filler.head_%d" % i for i in (1, 2, 3, 4)]
+FAULTED = "larkspur.line_b.filler.head_3"
 CAUTION = "no safety interlock"
 
 # Small windows: the first evaluation comes after 250 samples, then one every
@@ -63,7 +67,7 @@ seed = 11
 
 [[group]]
 name = "line_b_fill"
-match = "larkspur/line_b/fill_*"
+match = "larkspur.line_b.filler.head_*"
 reference = "baseline"
 reference_size = 200
 recent_size = 50
@@ -87,38 +91,6 @@ class Failure(Exception):
 def check(cond, message):
     if not cond:
         raise Failure(message)
-
-
-# --- The feeder --------------------------------------------------------------
-# plumbline-sim's `send` command is to inject the fault here once the
-# simulator exists; until then this function sends the daemon's wire format
-# (`STREAM,TIME,VALUE` lines, README.md "Sending data") over TCP itself.
-# Replace this one function to change the feeder; nothing else depends on it.
-
-def feed_streams(tcp_port, streams, faulted, seed=2026, baseline=200, after=200, chunk=25,
-                 pace_s=0.25):
-    """Sends `baseline` in-control fills per stream, then `after` more, with
-    the fills of `faulted` shifted up by 1.5 sd from then on.
-
-    Fills are N(125.0 g, 0.40 g^2) from Python's seeded Mersenne Twister,
-    rounded to the checkweigher's 1 mg; streams are interleaved, `chunk`
-    fills per stream per `pace_s` seconds, as from a running line. An
-    empty TIME field means the daemon's receipt time.
-    """
-    mean, sd, shift = 125.0, 0.40, 0.60
-    gen = random.Random(seed)
-    values = {s: [gen.gauss(mean, sd) for _ in range(baseline + after)] for s in streams}
-    for i in range(baseline, baseline + after):
-        values[faulted][i] += shift
-    with socket.create_connection(("127.0.0.1", tcp_port), timeout=10) as sock:
-        for start in range(0, baseline + after, chunk):
-            lines = []
-            for i in range(start, min(start + chunk, baseline + after)):
-                for s in streams:
-                    lines.append("%s,,%.3f\n" % (s, values[s][i]))
-            sock.sendall("".join(lines).encode())
-            time.sleep(pace_s)
-    return shift
 
 
 # --- Processes ---------------------------------------------------------------
@@ -302,9 +274,26 @@ def run_test(a, tmp, deadline, procs):
              deadline)
     print("Prometheus scrapes the daemon (up == 1)")
 
-    shift = feed_streams(tcp_port, STREAMS, FAULTED)
-    print("fed %d streams; %s shifted by %+.2f g after its baseline" %
-          (len(STREAMS), FAULTED, shift))
+    truth_path = os.path.join(tmp, "truth.json")
+    sim = Process("plumbline-sim send", [
+        a.plumbline_sim, "send", "--scenario", a.scenario, "--to", "127.0.0.1:%d" % tcp_port,
+        "--speed", "%g" % a.speed, "--truth", truth_path, "--quiet",
+    ], os.path.join(tmp, "plumbline-sim.log"))
+    procs.append(sim)
+    try:
+        code = sim.proc.wait(timeout=max(1, deadline - time.monotonic()))
+    except subprocess.TimeoutExpired:
+        raise Failure("plumbline-sim send did not finish before the deadline")
+    check(code == 0, "plumbline-sim send exited %s: %s" % (code, sim.log_text()[-2000:]))
+    with open(truth_path) as f:
+        truth = json.load(f)
+    check(sorted(s["stream"] for s in truth["streams"]) == STREAMS,
+          "the scenario's streams are %s" % [s["stream"] for s in truth["streams"]])
+    check([x["stream"] for x in truth["faults"]] == [FAULTED],
+          "the scenario's faults are on %s" % [x["stream"] for x in truth["faults"]])
+    shift = truth["faults"][0]["size"]
+    print("sent %d streams with plumbline-sim; %s shifted by %+.2f g from %.1f s" %
+          (len(truth["streams"]), FAULTED, shift, truth["faults"][0]["start_offset"]))
 
     wrong = []  # PlumblineAlarm alerts ever seen for a head other than the faulted one
 
@@ -369,10 +358,28 @@ def run_test(a, tmp, deadline, procs):
           <= band["plumbline_drift_upper"],
           "the band of the shifted head is not an interval above 0: %s" % band)
 
+    # The simulator's own score of the daemon's alarm history agrees.
+    out = subprocess.run([a.plumbline_sim, "score", "--truth", truth_path, "--daemon",
+                          "127.0.0.1:%d" % http_port, "--json"], stdin=subprocess.DEVNULL,
+                         capture_output=True, text=True, timeout=30)
+    check(out.returncode == 0, "plumbline-sim score exited %d: %s" % (out.returncode, out.stderr))
+    score = json.loads(out.stdout)
+    print("plumbline-sim score: %s, %d false alarms" %
+          ([(x["stream"], x["result"], x.get("delay_seconds")) for x in score["faults"]],
+           score["false_alarms"]))
+    check([(x["stream"], x["result"]) for x in score["faults"]] == [(FAULTED, "detected")],
+          "plumbline-sim score: %s" % score["faults"])
+    check(score["false_alarms"] == 0, "plumbline-sim score counts %d false alarms" %
+          score["false_alarms"])
+
 
 def main():
     ap = argparse.ArgumentParser()
     ap.add_argument("--plumbline", required=True)
+    ap.add_argument("--plumbline-sim", required=True)
+    ap.add_argument("--scenario", required=True)
+    ap.add_argument("--speed", type=float, default=4,
+                    help="simulated seconds per wall second of plumbline-sim send")
     ap.add_argument("--rules", required=True)
     ap.add_argument("--scrape-config", required=True)
     ap.add_argument("--deadline", type=float, default=240,
