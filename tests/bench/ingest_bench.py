@@ -241,11 +241,11 @@ def part_alone(args, tmp, streams, seconds, reference, recent, fill, raw_window_
     try:
         warm = run_load(args.build, d.ingest_port, streams, records=fill)
         d.wait_records(warm["records_sent"])
-        cpu0 = d.cpu_seconds()
+        cpu0, wall0 = d.cpu_seconds(), time.monotonic()
         r = run_load(args.build, d.ingest_port, streams, seconds=seconds)
+        daemon_cpu, wall = d.cpu_seconds() - cpu0, time.monotonic() - wall0
         expected = warm["records_sent"] + r["records_sent"]
         got = d.wait_records(expected)
-        daemon_cpu = d.cpu_seconds() - cpu0
         rate = r["records_sent"] / r["seconds"]
         rss = d.rss_bytes()
         text = d.metrics()
@@ -255,9 +255,9 @@ def part_alone(args, tmp, streams, seconds, reference, recent, fill, raw_window_
         d.stop()
     print(f"\ningest alone: {streams} streams, {CONNECTIONS} connections, {seconds:g} s")
     print(f"  {rate / 1e6:.2f} M records/s (target >= 8.00)  ratio {rate / 8e6:.2f}")
-    print(f"  the daemon used {daemon_cpu / r['seconds']:.2f} cores (the sender and the kernel's"
-          f" loopback the rest): {r['records_sent'] / daemon_cpu / 1e6:.2f} M records per"
-          f" daemon CPU-second")
+    print(f"  the daemon used {daemon_cpu / wall:.2f} cores over the sender's run (the sender and"
+          f" the kernel's loopback the rest): {r['records_sent'] / daemon_cpu / 1e6:.2f} M records"
+          f" per daemon CPU-second")
     print(f"  sent {expected:.0f}, accepted {got:.0f}, rejected {rejected:.0f}"
           f"  ({'no loss' if got == expected and rejected == 0 else 'LOSS'})")
     print(f"  resident memory {rss / 2**20:.1f} MiB; raw window bytes "
