@@ -553,12 +553,8 @@ load_result load_config_string(std::string_view text, std::string_view source_na
   return result;
 }
 
-load_result load_config_file(const std::string& path) {
-  load_result result;
-  auto fail = [&](const std::string& why) {
-    result.errors.push_back({path, 0, 0, "cannot read: " + why});
-    return result;
-  };
+std::variant<std::string, config_error> read_config_text(const std::string& path) {
+  auto fail = [&](const std::string& why) { return config_error{path, 0, 0, "cannot read: " + why}; };
   std::error_code ec;
   if (std::filesystem::is_directory(path, ec)) return fail("it is a directory");
   std::ifstream in(path, std::ios::binary);
@@ -567,12 +563,20 @@ load_result load_config_file(const std::string& path) {
   in.read(text.data(), static_cast<std::streamsize>(text.size()));
   if (in.bad()) return fail(std::strerror(errno));
   text.resize(static_cast<std::size_t>(in.gcount()));
-  if (text.size() > max_config_bytes) {
-    result.errors.push_back(
-        {path, 0, 0, "too large (more than " + std::to_string(max_config_bytes) + " bytes)"});
+  if (text.size() > max_config_bytes)
+    return config_error{path, 0, 0,
+                        "too large (more than " + std::to_string(max_config_bytes) + " bytes)"};
+  return text;
+}
+
+load_result load_config_file(const std::string& path) {
+  auto text = read_config_text(path);
+  if (auto* e = std::get_if<config_error>(&text)) {
+    load_result result;
+    result.errors.push_back(std::move(*e));
     return result;
   }
-  return load_config_string(text, path);
+  return load_config_string(std::get<std::string>(text), path);
 }
 
 }  // namespace plumbline::config

@@ -33,6 +33,7 @@
 #include <optional>
 #include <string>
 #include <string_view>
+#include <variant>
 #include <vector>
 
 #include "config/options.h"
@@ -56,6 +57,13 @@ struct load_result {
   std::optional<daemon_config> config;  // set exactly when errors is empty
   std::vector<config_error> errors;
 };
+
+// The whole text of the file at `path`, at most max_config_bytes, or the
+// one error that says why not: "PATH: cannot read: REASON" (a directory, a
+// missing or unreadable file) or "PATH: too large (...)". Shared by every
+// loader of TOML files (the daemon's configuration, the simulator's
+// scenarios).
+std::variant<std::string, config_error> read_config_text(const std::string& path);
 
 // Reads and validates the file at `path`. An unreadable file gives one
 // error, "PATH: cannot read: REASON".

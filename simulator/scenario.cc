@@ -611,20 +611,13 @@ scenario_result load_scenario_string(std::string_view text, std::string_view sou
 }
 
 scenario_result load_scenario_file(const std::string& path) {
-  scenario_result result;
-  auto fail = [&](const std::string& why) {
-    result.errors.push_back({path, 0, 0, "cannot read: " + why});
+  auto text = config::read_config_text(path);
+  if (auto* e = std::get_if<config::config_error>(&text)) {
+    scenario_result result;
+    result.errors.push_back(std::move(*e));
     return result;
-  };
-  std::error_code ec;
-  if (std::filesystem::is_directory(path, ec)) return fail("it is a directory");
-  std::ifstream in(path, std::ios::binary);
-  if (!in) return fail(std::strerror(errno));
-  std::string text(config::max_config_bytes + 1, '\0');
-  in.read(text.data(), static_cast<std::streamsize>(text.size()));
-  if (in.bad()) return fail(std::strerror(errno));
-  text.resize(static_cast<std::size_t>(in.gcount()));
-  return load_scenario_string(text, path);
+  }
+  return load_scenario_string(std::get<std::string>(text), path);
 }
 
 }  // namespace plumbline::sim

@@ -87,3 +87,22 @@ TEST_CASE("simulator/README.md documents every scenario key", "[unit][sim]") {
     CHECK(readme.find(row) != std::string::npos);
   }
 }
+
+TEST_CASE("scenario files that cannot be read or are too large give one error each",
+          "[unit][sim]") {
+  // The same reader as the daemon's configuration (config::read_config_text).
+  plumbline::testing::temp_dir dir;
+  const scenario_result missing = load_scenario_file(dir.file("none.toml"));
+  REQUIRE(missing.errors.size() == 1);
+  CHECK(missing.errors[0].str() == dir.file("none.toml") +
+                                       ": cannot read: No such file or directory");
+  const scenario_result directory = load_scenario_file(dir.path().string());
+  REQUIRE(directory.errors.size() == 1);
+  CHECK(directory.errors[0].str() == dir.path().string() + ": cannot read: it is a directory");
+  const std::string big =
+      dir.write("big.toml", std::string(plumbline::config::max_config_bytes + 1, '#'));
+  const scenario_result large = load_scenario_file(big);
+  REQUIRE(large.errors.size() == 1);
+  CHECK(large.errors[0].str() == big + ": too large (more than 1048576 bytes)");
+  CHECK_FALSE(large.value.has_value());
+}
