@@ -18,7 +18,10 @@
 // finaliser (a bijection on 64-bit words) is applied to the daemon seed
 // before the XOR, so that neighbouring daemon seeds do not cancel
 // neighbouring name hashes, and to the XOR itself, so that the seeds of
-// similar names differ in about half their bits.
+// similar names differ in about half their bits. evaluation_seed mixes the
+// evaluation number the same way before the XOR, so that consecutive
+// evaluations of one stream, and the same evaluation of two streams, get
+// unrelated seeds.
 #include "core/monitor.h"
 
 #include <cassert>
@@ -65,6 +68,10 @@ uint64_t stream_seed(uint64_t daemon_seed, std::string_view stream_name) {
   return mix(mix(daemon_seed) ^ fnv1a64(stream_name));
 }
 
+uint64_t evaluation_seed(uint64_t stream_seed, uint64_t evaluation) {
+  return mix(stream_seed ^ mix(evaluation));
+}
+
 double interval_null_value(const interval_result& r) {
   switch (r.quantity) {
     case drift_quantity::sd_ratio:
@@ -90,11 +97,18 @@ std::optional<drift_interval> evaluation_result::alarm_interval() const {
 }
 
 stream_monitor::stream_monitor(const monitor_settings& settings, std::size_t dimension)
-    : settings_(settings), dim_(dimension < 1 ? 1 : dimension), alarm_(settings.alarm) {
+    : stream_monitor(std::make_shared<const monitor_settings>(settings), dimension) {}
+
+stream_monitor::stream_monitor(std::shared_ptr<const monitor_settings> settings,
+                               std::size_t dimension)
+    : settings_(std::move(settings)),
+      dim_(dimension < 1 ? 1 : dimension),
+      alarm_(settings_->alarm) {
   assert(dimension >= 1);
-  assert(settings.reference_size >= 1 && settings.recent_size >= 1);
-  const std::size_t ref_cap = settings.reference_size < 1 ? 1 : settings.reference_size;
-  const std::size_t rec_cap = settings.recent_size < 1 ? 1 : settings.recent_size;
+  const monitor_settings& s = *settings_;
+  assert(s.reference_size >= 1 && s.recent_size >= 1);
+  const std::size_t ref_cap = s.reference_size < 1 ? 1 : s.reference_size;
+  const std::size_t rec_cap = s.recent_size < 1 ? 1 : s.recent_size;
   if (dim_ == 1) {
     ref_1_.emplace(ref_cap);
     rec_1_.emplace(rec_cap);
@@ -105,7 +119,7 @@ stream_monitor::stream_monitor(const monitor_settings& settings, std::size_t dim
 }
 
 void stream_monitor::prefetch_state() const {
-  __builtin_prefetch(&settings_.policy);
+  __builtin_prefetch(&settings_);
   __builtin_prefetch(&dim_);
   __builtin_prefetch(&ref_1_);
   __builtin_prefetch(&rec_1_);
@@ -114,7 +128,7 @@ void stream_monitor::prefetch_state() const {
 
 void stream_monitor::prefetch_window() const {
   if (dim_ != 1) return;
-  switch (settings_.policy) {
+  switch (settings_->policy) {
     case reference_policy::baseline:
       __builtin_prefetch(ref_1_->full() ? rec_1_->next_slot() : ref_1_->next_slot(), 1);
       break;
@@ -145,7 +159,7 @@ expected<bool> stream_monitor::push(std::span<const double> values) {
   }
   if (dim_ == 1) {
     const double x = values[0];
-    switch (settings_.policy) {
+    switch (settings_->policy) {
       case reference_policy::baseline:
         if (!ref_1_->full()) {
           ref_1_->push(x);
@@ -162,7 +176,7 @@ expected<bool> stream_monitor::push(std::span<const double> values) {
         break;
     }
   } else {
-    switch (settings_.policy) {
+    switch (settings_->policy) {
       case reference_policy::baseline:
         if (!ref_n_->full()) {
           ref_n_->push(values);
@@ -185,20 +199,20 @@ expected<bool> stream_monitor::push(std::span<const double> values) {
 }
 
 expected<bool> stream_monitor::set_reference(std::span<const double> values) {
-  if (settings_.policy != reference_policy::file)
+  if (settings_->policy != reference_policy::file)
     return make_error(
         "a reference can be loaded only under the file reference policy; this "
         "stream uses the " +
-        std::string(policy_name(settings_.policy)) + " policy");
+        std::string(policy_name(settings_->policy)) + " policy");
   if (values.size() % dim_ != 0)
     return make_error("reference holds " + std::to_string(values.size()) +
                       " values, not a whole number of samples of " + std::to_string(dim_));
   const std::size_t samples = values.size() / dim_;
   if (samples < 2)
     return make_error("reference has " + samples_text(samples) + "; at least 2 are needed");
-  if (samples > settings_.reference_size)
+  if (samples > settings_->reference_size)
     return make_error("reference has " + samples_text(samples) + ", more than reference_size " +
-                      std::to_string(settings_.reference_size));
+                      std::to_string(settings_->reference_size));
   for (std::size_t i = 0; i < values.size(); ++i)
     if (!std::isfinite(values[i]))
       return make_error("reference sample " + std::to_string(i / dim_ + 1) +
@@ -346,7 +360,11 @@ std::optional<alarm_event> stream_monitor::record(const evaluation_result& r, do
   std::optional<alarm_event> event;
   std::string error;
   if (!accept(r, time, event, error)) return std::nullopt;
-  last_ = r;
+  if (last_) {
+    *last_ = r;
+  } else {
+    last_ = std::make_unique<evaluation_result>(r);
+  }
   if (!error.empty()) last_->error = std::move(error);
   return event;
 }
@@ -355,13 +373,17 @@ std::optional<alarm_event> stream_monitor::record(evaluation_result&& r, double 
   std::optional<alarm_event> event;
   std::string error;
   if (!accept(r, time, event, error)) return std::nullopt;
-  last_ = std::move(r);
+  if (last_) {
+    *last_ = std::move(r);
+  } else {
+    last_ = std::make_unique<evaluation_result>(std::move(r));
+  }
   if (!error.empty()) last_->error = std::move(error);
   return event;
 }
 
 std::optional<alarm_event> stream_monitor::rebaseline(double time) {
-  switch (settings_.policy) {
+  switch (settings_->policy) {
     case reference_policy::baseline:
     case reference_policy::lagged:
       if (dim_ == 1) {
@@ -388,12 +410,18 @@ std::optional<alarm_event> stream_monitor::rebaseline(double time) {
 
 std::optional<alarm_event> stream_monitor::apply_settings(const monitor_settings& s,
                                                           double time) {
+  return apply_settings(std::make_shared<const monitor_settings>(s), time);
+}
+
+std::optional<alarm_event> stream_monitor::apply_settings(
+    std::shared_ptr<const monitor_settings> shared, double time) {
+  const monitor_settings& s = *shared;
   assert(s.reference_size >= 1 && s.recent_size >= 1);
   const std::size_t ref_cap = s.reference_size < 1 ? 1 : s.reference_size;
   const std::size_t rec_cap = s.recent_size < 1 ? 1 : s.recent_size;
   alarm_.set_rule(s.alarm);
-  if (s.policy != settings_.policy) {
-    settings_ = s;
+  if (s.policy != settings_->policy) {
+    settings_ = std::move(shared);
     if (dim_ == 1) {
       ref_1_.emplace(ref_cap);
       rec_1_.emplace(rec_cap);
@@ -419,7 +447,7 @@ std::optional<alarm_event> stream_monitor::apply_settings(const monitor_settings
     if (s.policy != reference_policy::file) resize(ref_n_, ref_cap);
     resize(rec_n_, rec_cap);
   }
-  settings_ = s;
+  settings_ = std::move(shared);
   if (changed) ++generation_;
   return std::nullopt;
 }

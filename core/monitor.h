@@ -42,8 +42,9 @@
 // A result captured before a rebaseline() or set_reference() describes
 // windows that are gone: record() drops it (stale_results_total()).
 //
-// Seeds. stream_seed(daemon_seed, name) derives each stream's generator seed
-// (below), so every stream has its own reproducible random stream.
+// Seeds. stream_seed(daemon_seed, name) derives each stream's seed and
+// evaluation_seed(stream seed, k) the seed of its k-th evaluation (below), so
+// every evaluation of every stream has its own reproducible random stream.
 //
 // Reload. apply_settings(s, time) moves a running stream to new settings:
 //   same policy   a window whose size changed keeps its newest samples that
@@ -76,6 +77,7 @@
 #include <Eigen/Core>
 #include <cstddef>
 #include <cstdint>
+#include <memory>
 #include <optional>
 #include <span>
 #include <string>
@@ -101,6 +103,13 @@ uint64_t fnv1a64(std::string_view text);
 // where mix(x) is the first output of splitmix64 seeded with x (rng.h).
 // Integer arithmetic on fixed-width types only: identical on every platform.
 uint64_t stream_seed(uint64_t daemon_seed, std::string_view stream_name);
+
+// The generator seed of a stream's evaluation number `evaluation` (0 for its
+// first): mix(stream_seed ^ mix(evaluation)), with mix as above. The daemon
+// seeds a fresh rng with it for every evaluation, so a result is a function
+// of (daemon seed, stream name, evaluation number, windows, settings) alone,
+// and a stream keeps no generator between evaluations.
+uint64_t evaluation_seed(uint64_t stream_seed, uint64_t evaluation);
 
 // The null value of an interval's quantity, as the alarm's tolerance band is
 // centred: 1 for sd-ratio, the reference window's Cpk for cpk (only the recent
@@ -159,8 +168,12 @@ class stream_monitor {
   // REQUIRES: settings validated (reference_size, recent_size >= 1);
   // dimension >= 1. `dimension` is the stream's; settings.dimension is not
   // consulted (0 there lets the daemon take it from the stream's first record).
-  // Allocates both windows.
+  // Allocates both windows. The first form keeps its own copy of the
+  // settings; the second shares them (a daemon with many streams of one
+  // group keeps one copy for all; the monitor keeps them alive).
   stream_monitor(const monitor_settings& settings, std::size_t dimension);
+  // REQUIRES: settings non-null.
+  stream_monitor(std::shared_ptr<const monitor_settings> settings, std::size_t dimension);
 
   // One sample of dimension() values. O(dimension), no allocation. A sample
   // of the wrong size or with a non-finite value is rejected with an error
@@ -180,7 +193,8 @@ class stream_monitor {
 
   bool ready() const { return reference_full() && recent_full(); }
   bool due_by_count() const {
-    return ready() && settings_.every_samples > 0 && since_evaluation_ >= settings_.every_samples;
+    return ready() && settings_->every_samples > 0 &&
+           since_evaluation_ >= settings_->every_samples;
   }
 
   // Prefetch hints for push() (a daemon ingesting many streams asks a few
@@ -212,12 +226,17 @@ class stream_monitor {
   // header comment). Returns the alarm event it caused, if any (a changed
   // reference policy clears an active alarm). REQUIRES: s validated.
   std::optional<alarm_event> apply_settings(const monitor_settings& s, double time);
+  // The same, sharing s. REQUIRES: s non-null.
+  std::optional<alarm_event> apply_settings(std::shared_ptr<const monitor_settings> s,
+                                            double time);
 
-  const monitor_settings& settings() const { return settings_; }
+  const monitor_settings& settings() const { return *settings_; }
   std::size_t dimension() const { return dim_; }
   const alarm_state& alarm() const { return alarm_; }
-  // The last recorded result; nullopt before the first record().
-  const std::optional<evaluation_result>& last_result() const { return last_; }
+  // The last recorded result; null before the first record() (and after a
+  // restore from a snapshot, which does not keep it). Valid until the next
+  // record() or restore.
+  const evaluation_result* last_result() const { return last_.get(); }
 
   uint64_t samples_total() const { return samples_total_; }
   uint64_t samples_since_evaluation() const { return since_evaluation_; }
@@ -246,14 +265,16 @@ class stream_monitor {
   bool recent_full() const;
   friend struct state_codec_access;  // core/state_codec.cc: snapshots
 
-  monitor_settings settings_;
+  std::shared_ptr<const monitor_settings> settings_;  // never null
   std::size_t dim_;
   // Dimension 1.
   std::optional<sample_window> ref_1_, rec_1_;
   // Dimension >= 2.
   std::optional<row_window> ref_n_, rec_n_;
   alarm_state alarm_;
-  std::optional<evaluation_result> last_;
+  // On the heap, so that a stream never evaluated (or between restarts)
+  // carries a pointer, not a whole result.
+  std::unique_ptr<evaluation_result> last_;
   uint64_t samples_total_ = 0;
   uint64_t since_evaluation_ = 0;
   uint64_t rejected_total_ = 0;

@@ -247,7 +247,7 @@ struct state_codec_access {
   }
 
   static void put(state_codec::writer& w, const stream_monitor& m) {
-    w.u8(static_cast<uint8_t>(m.settings_.policy));
+    w.u8(static_cast<uint8_t>(m.settings_->policy));
     w.u32(static_cast<uint32_t>(m.dim_));
     for (uint64_t c : {m.samples_total_, m.since_evaluation_, m.rejected_total_,
                        m.evaluations_total_, m.failed_total_, m.stale_total_,
@@ -276,7 +276,7 @@ struct state_codec_access {
     const alarm_stage& alarm = st.alarm;
     // Commit: nothing below can fail.
     const auto saved_policy = static_cast<reference_policy>(policy);
-    const bool same_policy = saved_policy == m.settings_.policy;
+    const bool same_policy = saved_policy == m.settings_->policy;
     if (same_policy) {
       if (m.dim_ == 1) {
         if (saved_policy != reference_policy::file) commit(*m.ref_1_, ref);

@@ -125,29 +125,29 @@ void evaluator::work() {
 
 void evaluator::run_one(stream_entry& e, evaluation_input& input, evaluation_scratch& scratch) {
   const double requested = e.requested_at.load(std::memory_order_relaxed);
-  // The settings, the configuration that holds them and the generator are
-  // taken under the lock with the windows (a reload or a snapshot may come
-  // meanwhile); the advanced generator is stored back with the result.
+  // The settings, the configuration that holds them and the evaluation's
+  // seed are taken under the lock with the windows (a reload or a snapshot
+  // may come meanwhile).
   std::shared_ptr<const config::daemon_config> config;
   const config::stream_group* group = nullptr;
-  std::optional<rng> gen;
+  uint64_t seed = 0;
   {
     std::lock_guard lock(e.mu);
     e.monitor.capture(input);
     config = e.config;
     group = e.group;
-    gen.emplace(e.gen);
+    seed = e.next_evaluation_seed();
   }
   const auto t0 = std::chrono::steady_clock::now();
-  evaluation_result result = stream_monitor::evaluate(input, group->settings, scratch, *gen);
+  rng gen(seed);
+  evaluation_result result = stream_monitor::evaluate(input, group->settings, scratch, gen);
   const double seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
   std::optional<alarm_event> event;
   {
     std::lock_guard lock(e.mu);
     const double now = unix_now();
-    e.gen = *gen;
-    event = e.monitor.record(result, now);
+    event = e.monitor.record(std::move(result), now);
     ++e.evaluations;
     e.last_evaluation_time = now;
     e.last_evaluation_seconds = seconds;

@@ -140,7 +140,8 @@ reload_outcome apply_config(stream_table& streams,
     const uint64_t generation = e.monitor.generation();
     const bool policy_changed = e.monitor.settings().policy != g->settings.policy;
     if (g->name != e.group->name) ++out.regrouped;
-    e.monitor.apply_settings(g->settings, now);
+    // The monitor shares the group's settings; they live as long as `next`.
+    e.monitor.apply_settings(std::shared_ptr<const monitor_settings>(next, &g->settings), now);
     if (policy_changed) ++out.emptied;
     if (g->settings.policy == reference_policy::file &&
         reference_values(e.monitor) != g->reference_sample) {

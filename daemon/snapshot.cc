@@ -135,7 +135,6 @@ std::string encode_stream(const stream_entry& e) {
   f.evaluations = e.evaluations;
   f.last_evaluation_time = e.last_evaluation_time;
   f.last_evaluation_seconds = e.last_evaluation_seconds;
-  f.gen = e.gen.state();
   std::string out;
   write_stream(out, head, f);
   state_codec::writer w(out);
@@ -143,11 +142,12 @@ std::string encode_stream(const stream_entry& e) {
   return out;
 }
 
-bool restore_stream(std::string_view payload, stream_entry& e, double now, std::string& error) {
+bool restore_stream(std::string_view payload, stream_entry& e, double now, std::string& error,
+                    uint32_t version) {
   stream_head head;
   stream_fields f;
   std::size_t monitor_at = 0;
-  if (!read_stream(payload, head, f, monitor_at, error)) return false;
+  if (!read_stream(payload, head, f, monitor_at, error, version)) return false;
   if (head.name != e.name) {
     error = "the section is for another stream";
     return false;
@@ -164,7 +164,6 @@ bool restore_stream(std::string_view payload, stream_entry& e, double now, std::
   e.evaluations = f.evaluations;
   e.last_evaluation_time = f.last_evaluation_time;
   e.last_evaluation_seconds = f.last_evaluation_seconds;
-  e.gen.restore(f.gen);
   return true;
 }
 
@@ -236,14 +235,15 @@ std::size_t snapshotter::restore(double now) {
     if (p.value().seed != seed_)
       log_(1, "snapshot " + path + " was written with evaluation seed " +
                   std::to_string(p.value().seed) + "; the daemon runs with " +
-                  std::to_string(seed_) + " (restored generators continue their saved streams)");
+                  std::to_string(seed_) +
+                  " (restored streams seed their next evaluations from the running seed)");
     std::size_t restored = 0;
     for (const section& s : p.value().streams) {
       stream_head head;
       stream_fields fields;
       std::size_t at = 0;
       std::string error;
-      read_stream(s.payload, head, fields, at, error);  // checked by parse()
+      read_stream(s.payload, head, fields, at, error, p.value().version);  // checked by parse()
       const stream_table::lookup l =
           streams_.find_or_create(head.name, stream_name_hash(head.name), head.dimension);
       if (l.entry == nullptr) {
@@ -254,7 +254,7 @@ std::size_t snapshotter::restore(double now) {
         continue;
       }
       std::lock_guard entry_lock(l.entry->mu);
-      if (!restore_stream(s.payload, *l.entry, now, error)) {
+      if (!restore_stream(s.payload, *l.entry, now, error, p.value().version)) {
         log_(1, "snapshot stream " + head.name + " not restored: " + error);
         continue;
       }

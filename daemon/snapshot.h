@@ -54,9 +54,11 @@ namespace plumbline::snapshot {
 
 // One stream's section payload. REQUIRES: e.mu held.
 std::string encode_stream(const stream_entry& e);
-// Restores the payload into e. REQUIRES: e.mu held, head.name == e.name.
-// False (e unchanged, `error` set) when it does not fit the entry.
-bool restore_stream(std::string_view payload, stream_entry& e, double now, std::string& error);
+// Restores the payload, laid out in file format `version`, into e.
+// REQUIRES: e.mu held, head.name == e.name. False (e unchanged, `error` set)
+// when it does not fit the entry.
+bool restore_stream(std::string_view payload, stream_entry& e, double now, std::string& error,
+                    uint32_t version = format_version);
 
 // Counters the daemon exports (metrics.h).
 struct status {

@@ -63,7 +63,8 @@ uint32_t crc32c(const void* data, std::size_t n, uint32_t crc) {
 }
 
 std::string frame(uint64_t generation, double written_at,
-                  const std::vector<std::pair<section_kind, std::string>>& sections) {
+                  const std::vector<std::pair<section_kind, std::string>>& sections,
+                  uint32_t version) {
   std::size_t total = header_bytes;
   for (const auto& s : sections)
     total += section_header_bytes + s.second.size();
@@ -71,7 +72,7 @@ std::string frame(uint64_t generation, double written_at,
   out.reserve(total);
   state_codec::writer w(out);
   out.append(magic, sizeof magic);
-  w.u32(format_version);
+  w.u32(version);
   w.u32(static_cast<uint32_t>(sections.size()));
   w.u64(generation);
   w.u64(total);
@@ -88,14 +89,18 @@ std::string frame(uint64_t generation, double written_at,
 }
 
 bool read_stream(std::string_view payload, stream_head& head, stream_fields& f,
-                 std::size_t& monitor_at, std::string& error) {
+                 std::size_t& monitor_at, std::string& error, uint32_t version) {
   state_codec::reader r(payload);
   uint8_t primed = 0;
+  // Version 1 kept each stream's generator after the scheduling fields; it is
+  // read (and checked) and dropped: evaluations now seed their own.
+  rng::state_type unused_generator;
   const bool ok = r.text(head.name, max_name_bytes) && r.text(head.group, max_name_bytes) &&
                   r.u32(head.dimension) && r.u64(f.since_trigger) && r.u8(primed) &&
                   r.f64(f.last_sample_time) && r.f64(f.last_trigger_time) &&
                   r.u64(f.evaluations) && r.f64(f.last_evaluation_time) &&
-                  r.f64(f.last_evaluation_seconds) && state_codec::decode(r, f.gen);
+                  r.f64(f.last_evaluation_seconds) &&
+                  (version != 1 || state_codec::decode(r, unused_generator));
   if (ok && head.name.empty()) r.fail("a stream with an empty name");
   if (ok && primed > 1) r.fail("the primed flag is neither 0 nor 1");
   if (ok && head.dimension == 0) r.fail("a stream of dimension 0");
@@ -120,7 +125,6 @@ void write_stream(std::string& out, const stream_head& head, const stream_fields
   w.u64(f.evaluations);
   w.f64(f.last_evaluation_time);
   w.f64(f.last_evaluation_seconds);
-  state_codec::encode(w, f.gen);
 }
 
 expected<parsed> parse(std::string_view bytes) {
@@ -187,7 +191,7 @@ expected<parsed> parse(std::string_view bytes) {
     stream_fields fields;
     std::size_t monitor_at = 0;
     std::string error;
-    if (!read_stream(payload, head, fields, monitor_at, error))
+    if (!read_stream(payload, head, fields, monitor_at, error, p.version))
       return make_error(where + ": " + error);
     state_codec::reader r(payload.substr(monitor_at));
     uint32_t dim = 0;

@@ -26,7 +26,10 @@ namespace plumbline::snapshot {
 uint32_t crc32c(const void* data, std::size_t n, uint32_t crc = 0);
 
 inline constexpr char magic[8] = {'P', 'L', 'B', 'L', 'S', 'N', 'A', 'P'};
-inline constexpr uint32_t format_version = 1;
+// 2: stream sections hold no generator (each evaluation seeds its own, see
+// core/monitor.h evaluation_seed). 1: they held one after the scheduling
+// fields; a version 1 file still reads, its generators skipped.
+inline constexpr uint32_t format_version = 2;
 inline constexpr std::size_t header_bytes = 48;
 inline constexpr std::size_t section_header_bytes = 16;
 // The largest snapshot file read back (and so the largest written).
@@ -48,9 +51,12 @@ struct parsed {
   std::vector<section> streams;
 };
 
-// Frames and checksums sections into a complete file image.
+// Frames and checksums sections into a complete file image whose header
+// says format `version` (the sections must be laid out as that version says;
+// the daemon writes only format_version).
 std::string frame(uint64_t generation, double written_at,
-                  const std::vector<std::pair<section_kind, std::string>>& sections);
+                  const std::vector<std::pair<section_kind, std::string>>& sections,
+                  uint32_t version = format_version);
 
 // Checks a file image completely (header, lengths, checksums, the daemon
 // section, every stream section decoded in a dry run) and returns its
@@ -60,8 +66,8 @@ std::string frame(uint64_t generation, double written_at,
 expected<parsed> parse(std::string_view bytes);
 
 // A stream section's payload: u32-length-prefixed name and group, u32
-// dimension, the scheduling fields, the generator, then the monitor's state
-// (core/state_codec.h).
+// dimension, the scheduling fields (in version 1, a generator state after
+// them), then the monitor's state (core/state_codec.h).
 struct stream_head {
   std::string name;
   std::string group;
@@ -75,13 +81,16 @@ struct stream_fields {
   uint64_t evaluations = 0;
   double last_evaluation_time = 0;
   double last_evaluation_seconds = 0;
-  rng::state_type gen;
 };
-// Reads everything before the monitor's state; `monitor_at` receives the
-// offset of the monitor's bytes. False with `error` set on a malformed payload.
+// Reads everything before the monitor's state, as laid out in file format
+// `version`; `monitor_at` receives the offset of the monitor's bytes. False
+// with `error` set on a malformed payload. REQUIRES: 1 <= version <=
+// format_version.
 bool read_stream(std::string_view payload, stream_head& head, stream_fields& fields,
-                 std::size_t& monitor_at, std::string& error);
-// Appends the head, fields and generator (the monitor's state follows).
+                 std::size_t& monitor_at, std::string& error,
+                 uint32_t version = format_version);
+// Appends the head and fields in the current format (the monitor's state
+// follows).
 void write_stream(std::string& out, const stream_head& head, const stream_fields& fields);
 
 // "snapshot-000000000000002a.plbs"; and its inverse (nullopt for any other name).

@@ -51,8 +51,8 @@ stream_entry::stream_entry(std::string name_, uint64_t hash_,
       seed(stream_seed(daemon_seed, name)),
       config(std::move(config_)),
       group(&group_),
-      monitor(group_.settings, dimension_),
-      gen(seed) {}
+      // Shares the group's settings, kept alive with the configuration.
+      monitor(std::shared_ptr<const monitor_settings>(config, &group_.settings), dimension_) {}
 
 namespace {
 std::size_t table_size(std::size_t max_streams) {

@@ -38,7 +38,6 @@
 
 #include "config/options.h"
 #include "core/monitor.h"
-#include "core/rng.h"
 #include "daemon/wire.h"
 
 namespace plumbline {
@@ -74,11 +73,12 @@ struct stream_entry {
   double last_evaluation_time = 0;  // Unix seconds; 0 = never
   double last_evaluation_seconds = 0;
 
-  // The stream's generator. Guarded by mu: an evaluation copies it when it
-  // captures the windows and stores the advanced copy back when it records
-  // its result, so a snapshot always sees a generator that matches the
-  // windows and results it sees.
-  rng gen;
+  // The seed of the stream's next evaluation: evaluation_seed(seed,
+  // evaluations) (core/monitor.h). Guarded by mu, like `evaluations`: an
+  // evaluation takes it when it captures the windows, and only one runs per
+  // stream at a time, so a snapshot (which saves `evaluations`) restores the
+  // seeds that would have come next.
+  uint64_t next_evaluation_seed() const { return evaluation_seed(seed, evaluations); }
 
   std::atomic<eval_state> state{eval_state::idle};
   // Steady-clock seconds of the request that the pending evaluation answers

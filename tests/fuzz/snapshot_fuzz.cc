@@ -13,7 +13,8 @@
 //     run with -rss_limit_mb and -malloc_limit_mb) and, on refusal, a
 //     non-empty reason.
 //   * An accepted image is canonical: framing its sections again (daemon
-//     section from the parsed seed and count) gives back exactly the input.
+//     section from the parsed seed and count, header with the parsed format
+//     version) gives back exactly the input.
 //   * Every accepted stream restores into a fresh monitor of its dimension
 //     (under each reference policy, with windows of other sizes than the
 //     saved ones), the windows respect their capacities, and the restored
@@ -75,12 +76,13 @@ void fix_checksums(std::string& b) {
   }
 }
 
-void check_restore(std::string_view payload) {
+void check_restore(std::string_view payload, uint32_t version) {
   snap::stream_head head;
   snap::stream_fields fields;
   std::size_t at = 0;
   std::string error;
-  require(snap::read_stream(payload, head, fields, at, error), "an accepted stream's head reads");
+  require(snap::read_stream(payload, head, fields, at, error, version),
+          "an accepted stream's head reads");
   const std::string_view state = payload.substr(at);
   if (head.dimension > 64) return;  // accepted, but too wide to build cheaply here
   for (int policy = 0; policy < 3; ++policy) {
@@ -132,9 +134,10 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   sections.emplace_back(snap::section_kind::daemon, daemon);
   for (const auto& s : p.value().streams)
     sections.emplace_back(s.kind, std::string(s.payload));
-  require(snap::frame(p.value().generation, p.value().written_at, sections) == image,
+  require(snap::frame(p.value().generation, p.value().written_at, sections, p.value().version) ==
+              image,
           "an accepted image is canonical");
   for (const auto& s : p.value().streams)
-    check_restore(s.payload);
+    check_restore(s.payload, p.value().version);
   return 0;
 }

@@ -6,7 +6,7 @@
 // see snapshot_fuzz.cc) of a few invented Larkspur streams that cover the
 // codec's cases: no stream at all; a univariate baseline stream with a
 // wrapped alarm history; a lagged stream of dimension 3; a file-policy
-// stream; a generator in the middle of a block with a pending half-word.
+// stream.
 // The images come from the same encoder the daemon uses, so the corpus
 // follows the format as it is.
 #include <cstdio>
@@ -39,15 +39,13 @@ void record(stream_monitor& m, double p, double time) {
   m.record(r, time);
 }
 
-std::string stream_section(const std::string& name, const stream_monitor& m,
-                           const plumbline::rng& gen) {
+std::string stream_section(const std::string& name, const stream_monitor& m) {
   snap::stream_head head{name, "larkspur_demo", static_cast<uint32_t>(m.dimension())};
   snap::stream_fields f;
   f.since_trigger = 3;
   f.primed = true;
   f.last_sample_time = 1764633600.5;
   f.evaluations = m.evaluations_total();
-  f.gen = gen.state();
   std::string out;
   snap::write_stream(out, head, f);
   codec::writer w(out);
@@ -85,16 +83,13 @@ int main(int argc, char** argv) {
   s.alarm.clear_after = 1;
   s.alarm.history_limit = 2;
   stream_monitor a(s, 1);
-  plumbline::rng ga(7);
   for (int i = 0; i < 14; ++i) {
     const double v = 500.0 + 0.25 * i;
     a.push(std::span<const double>(&v, 1));
     if (i >= 9) record(a, i % 2 ? 0.001 : 0.5, 1764633600.0 + i);
   }
-  for (int i = 0; i < 37; ++i)
-    ga.next_u64();
-  ga.next_u32();
-  images.push_back(image({{"larkspur/line_b/fill_4", stream_section("larkspur/line_b/fill_4", a, ga)}}));
+  images.push_back(
+      image({{"larkspur/line_b/fill_4", stream_section("larkspur/line_b/fill_4", a)}}));
 
   monitor_settings l = s;
   l.policy = reference_policy::lagged;
@@ -110,10 +105,10 @@ int main(int argc, char** argv) {
   c.set_reference(std::span<const double>(ref, 3));
   const double v = 72.4;
   c.push(std::span<const double>(&v, 1));
-  plumbline::rng gb(8), gc(9);
-  images.push_back(image({{"larkspur/line_d/capper_3", stream_section("larkspur/line_d/capper_3", b, gb)},
+  images.push_back(image({{"larkspur/line_d/capper_3",
+                           stream_section("larkspur/line_d/capper_3", b)},
                           {"larkspur/pasteuriser/hold_temp",
-                           stream_section("larkspur/pasteuriser/hold_temp", c, gc)}}));
+                           stream_section("larkspur/pasteuriser/hold_temp", c)}}));
 
   int n = 0;
   for (const std::string& img : images) {
