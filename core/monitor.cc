@@ -103,26 +103,25 @@ stream_monitor::stream_monitor(std::shared_ptr<const monitor_settings> settings,
                                std::size_t dimension)
     : settings_(std::move(settings)),
       dim_(dimension < 1 ? 1 : dimension),
+      windows_(new_windows(*settings_, dim_)),
       alarm_(settings_->alarm) {
   assert(dimension >= 1);
-  const monitor_settings& s = *settings_;
-  assert(s.reference_size >= 1 && s.recent_size >= 1);
+  assert(settings_->reference_size >= 1 && settings_->recent_size >= 1);
+}
+
+stream_monitor::window_pair stream_monitor::new_windows(const monitor_settings& s,
+                                                        std::size_t dim) {
   const std::size_t ref_cap = s.reference_size < 1 ? 1 : s.reference_size;
   const std::size_t rec_cap = s.recent_size < 1 ? 1 : s.recent_size;
-  if (dim_ == 1) {
-    ref_1_.emplace(ref_cap);
-    rec_1_.emplace(rec_cap);
-  } else {
-    ref_n_.emplace(ref_cap, dim_);
-    rec_n_.emplace(rec_cap, dim_);
-  }
+  if (dim == 1) return univariate_windows{sample_window(ref_cap), sample_window(rec_cap)};
+  return multivariate_windows{row_window(ref_cap, dim), row_window(rec_cap, dim)};
 }
 
 void stream_monitor::prefetch_state() const {
   __builtin_prefetch(&settings_);
   __builtin_prefetch(&dim_);
-  __builtin_prefetch(&ref_1_);
-  __builtin_prefetch(&rec_1_);
+  __builtin_prefetch(&windows_);
+  __builtin_prefetch(reinterpret_cast<const char*>(&windows_) + 64);
   __builtin_prefetch(&samples_total_);
 }
 
@@ -130,14 +129,14 @@ void stream_monitor::prefetch_window() const {
   if (dim_ != 1) return;
   switch (settings_->policy) {
     case reference_policy::baseline:
-      __builtin_prefetch(ref_1_->full() ? rec_1_->next_slot() : ref_1_->next_slot(), 1);
+      __builtin_prefetch(ref_1().full() ? rec_1().next_slot() : ref_1().next_slot(), 1);
       break;
     case reference_policy::lagged:
-      __builtin_prefetch(rec_1_->next_slot(), 1);
-      __builtin_prefetch(ref_1_->next_slot(), 1);
+      __builtin_prefetch(rec_1().next_slot(), 1);
+      __builtin_prefetch(ref_1().next_slot(), 1);
       break;
     case reference_policy::file:
-      __builtin_prefetch(rec_1_->next_slot(), 1);
+      __builtin_prefetch(rec_1().next_slot(), 1);
       break;
   }
 }
@@ -161,35 +160,35 @@ expected<bool> stream_monitor::push(std::span<const double> values) {
     const double x = values[0];
     switch (settings_->policy) {
       case reference_policy::baseline:
-        if (!ref_1_->full()) {
-          ref_1_->push(x);
+        if (!ref_1().full()) {
+          ref_1().push(x);
         } else {
-          rec_1_->push(x);
+          rec_1().push(x);
         }
         break;
       case reference_policy::lagged:
-        if (rec_1_->full()) ref_1_->push((*rec_1_)[0]);
-        rec_1_->push(x);
+        if (rec_1().full()) ref_1().push(rec_1()[0]);
+        rec_1().push(x);
         break;
       case reference_policy::file:
-        rec_1_->push(x);
+        rec_1().push(x);
         break;
     }
   } else {
     switch (settings_->policy) {
       case reference_policy::baseline:
-        if (!ref_n_->full()) {
-          ref_n_->push(values);
+        if (!ref_n().full()) {
+          ref_n().push(values);
         } else {
-          rec_n_->push(values);
+          rec_n().push(values);
         }
         break;
       case reference_policy::lagged:
-        if (rec_n_->full()) ref_n_->push(std::span<const double>(rec_n_->row(0).data(), dim_));
-        rec_n_->push(values);
+        if (rec_n().full()) ref_n().push(std::span<const double>(rec_n().row(0).data(), dim_));
+        rec_n().push(values);
         break;
       case reference_policy::file:
-        rec_n_->push(values);
+        rec_n().push(values);
         break;
     }
   }
@@ -218,15 +217,15 @@ expected<bool> stream_monitor::set_reference(std::span<const double> values) {
       return make_error("reference sample " + std::to_string(i / dim_ + 1) +
                         " holds a value that is NaN or infinite");
   if (dim_ == 1) {
-    ref_1_->clear();
-    ref_1_->set_capacity(samples);
+    ref_1().clear();
+    ref_1().set_capacity(samples);
     for (const double x : values)
-      ref_1_->push(x);
+      ref_1().push(x);
   } else {
-    ref_n_->clear();
-    ref_n_->set_capacity(samples);
+    ref_n().clear();
+    ref_n().set_capacity(samples);
     for (std::size_t i = 0; i < samples; ++i)
-      ref_n_->push(values.subspan(i * dim_, dim_));
+      ref_n().push(values.subspan(i * dim_, dim_));
   }
   ++generation_;
   return true;
@@ -244,33 +243,33 @@ expected<bool> stream_monitor::set_reference(const Eigen::MatrixXd& rows) {
 }
 
 bool stream_monitor::reference_full() const {
-  return dim_ == 1 ? ref_1_->full() : ref_n_->full();
+  return dim_ == 1 ? ref_1().full() : ref_n().full();
 }
 bool stream_monitor::recent_full() const {
-  return dim_ == 1 ? rec_1_->full() : rec_n_->full();
+  return dim_ == 1 ? rec_1().full() : rec_n().full();
 }
 
 std::size_t stream_monitor::reference_fill() const {
-  return dim_ == 1 ? ref_1_->size() : ref_n_->size();
+  return dim_ == 1 ? ref_1().size() : ref_n().size();
 }
 std::size_t stream_monitor::recent_fill() const {
-  return dim_ == 1 ? rec_1_->size() : rec_n_->size();
+  return dim_ == 1 ? rec_1().size() : rec_n().size();
 }
 std::size_t stream_monitor::reference_capacity() const {
-  return dim_ == 1 ? ref_1_->capacity() : ref_n_->capacity();
+  return dim_ == 1 ? ref_1().capacity() : ref_n().capacity();
 }
 std::size_t stream_monitor::recent_capacity() const {
-  return dim_ == 1 ? rec_1_->capacity() : rec_n_->capacity();
+  return dim_ == 1 ? rec_1().capacity() : rec_n().capacity();
 }
 
 void stream_monitor::capture(evaluation_input& in) const {
   in.dimension = dim_;
   if (dim_ == 1) {
-    ref_1_->copy_to(in.reference);
-    rec_1_->copy_to(in.recent);
+    ref_1().copy_to(in.reference);
+    rec_1().copy_to(in.recent);
   } else {
-    ref_n_->copy_to(in.reference_rows);
-    rec_n_->copy_to(in.recent_rows);
+    ref_n().copy_to(in.reference_rows);
+    rec_n().copy_to(in.recent_rows);
   }
   in.samples_total = samples_total_;
   in.generation = generation_;
@@ -387,18 +386,18 @@ std::optional<alarm_event> stream_monitor::rebaseline(double time) {
     case reference_policy::baseline:
     case reference_policy::lagged:
       if (dim_ == 1) {
-        ref_1_->clear();
-        rec_1_->clear();
+        ref_1().clear();
+        rec_1().clear();
       } else {
-        ref_n_->clear();
-        rec_n_->clear();
+        ref_n().clear();
+        rec_n().clear();
       }
       break;
     case reference_policy::file:
       if (dim_ == 1) {
-        rec_1_->clear();
+        rec_1().clear();
       } else {
-        rec_n_->clear();
+        rec_n().clear();
       }
       break;
   }
@@ -422,13 +421,7 @@ std::optional<alarm_event> stream_monitor::apply_settings(
   alarm_.set_rule(s.alarm);
   if (s.policy != settings_->policy) {
     settings_ = std::move(shared);
-    if (dim_ == 1) {
-      ref_1_.emplace(ref_cap);
-      rec_1_.emplace(rec_cap);
-    } else {
-      ref_n_.emplace(ref_cap, dim_);
-      rec_n_.emplace(rec_cap, dim_);
-    }
+    windows_ = new_windows(s, dim_);
     since_evaluation_ = 0;
     ++generation_;
     ++rebaselines_total_;
@@ -436,16 +429,16 @@ std::optional<alarm_event> stream_monitor::apply_settings(
   }
   bool changed = false;
   auto resize = [&changed](auto& w, std::size_t cap) {
-    if (w->capacity() == cap) return;
-    w->set_capacity(cap);
+    if (w.capacity() == cap) return;
+    w.set_capacity(cap);
     changed = true;
   };
   if (dim_ == 1) {
-    if (s.policy != reference_policy::file) resize(ref_1_, ref_cap);
-    resize(rec_1_, rec_cap);
+    if (s.policy != reference_policy::file) resize(ref_1(), ref_cap);
+    resize(rec_1(), rec_cap);
   } else {
-    if (s.policy != reference_policy::file) resize(ref_n_, ref_cap);
-    resize(rec_n_, rec_cap);
+    if (s.policy != reference_policy::file) resize(ref_n(), ref_cap);
+    resize(rec_n(), rec_cap);
   }
   settings_ = std::move(shared);
   if (changed) ++generation_;

@@ -82,6 +82,7 @@
 #include <span>
 #include <string>
 #include <string_view>
+#include <variant>
 #include <vector>
 
 #include "core/alarm.h"
@@ -267,10 +268,34 @@ class stream_monitor {
 
   std::shared_ptr<const monitor_settings> settings_;  // never null
   std::size_t dim_;
-  // Dimension 1.
-  std::optional<sample_window> ref_1_, rec_1_;
-  // Dimension >= 2.
-  std::optional<row_window> ref_n_, rec_n_;
+  // The windows, in the form of the stream's dimension: only one pair is
+  // ever held (dimension 1: sample_windows; >= 2: row_windows).
+  struct univariate_windows {
+    sample_window reference, recent;
+  };
+  struct multivariate_windows {
+    row_window reference, recent;
+  };
+  using window_pair = std::variant<univariate_windows, multivariate_windows>;
+  window_pair windows_;
+  // The pair of the stream's kind. REQUIRES: dim_ == 1 for the first four,
+  // dim_ >= 2 for the rest.
+  sample_window& ref_1() { return std::get_if<univariate_windows>(&windows_)->reference; }
+  sample_window& rec_1() { return std::get_if<univariate_windows>(&windows_)->recent; }
+  const sample_window& ref_1() const {
+    return std::get_if<univariate_windows>(&windows_)->reference;
+  }
+  const sample_window& rec_1() const { return std::get_if<univariate_windows>(&windows_)->recent; }
+  row_window& ref_n() { return std::get_if<multivariate_windows>(&windows_)->reference; }
+  row_window& rec_n() { return std::get_if<multivariate_windows>(&windows_)->recent; }
+  const row_window& ref_n() const {
+    return std::get_if<multivariate_windows>(&windows_)->reference;
+  }
+  const row_window& rec_n() const {
+    return std::get_if<multivariate_windows>(&windows_)->recent;
+  }
+  // Both windows, empty, at the capacities of s, in the form of `dim`.
+  static window_pair new_windows(const monitor_settings& s, std::size_t dim);
   alarm_state alarm_;
   // On the heap, so that a stream never evaluated (or between restarts)
   // carries a pointer, not a whole result.

@@ -254,11 +254,11 @@ struct state_codec_access {
                        m.rebaselines_total_, m.generation_})
       w.u64(c);
     if (m.dim_ == 1) {
-      put(w, *m.ref_1_);
-      put(w, *m.rec_1_);
+      put(w, m.ref_1());
+      put(w, m.rec_1());
     } else {
-      put(w, *m.ref_n_);
-      put(w, *m.rec_n_);
+      put(w, m.ref_n());
+      put(w, m.rec_n());
     }
     put(w, m.alarm_);
   }
@@ -279,11 +279,11 @@ struct state_codec_access {
     const bool same_policy = saved_policy == m.settings_->policy;
     if (same_policy) {
       if (m.dim_ == 1) {
-        if (saved_policy != reference_policy::file) commit(*m.ref_1_, ref);
-        commit(*m.rec_1_, rec);
+        if (saved_policy != reference_policy::file) commit(m.ref_1(), ref);
+        commit(m.rec_1(), rec);
       } else {
-        if (saved_policy != reference_policy::file) commit(*m.ref_n_, ref);
-        commit(*m.rec_n_, rec);
+        if (saved_policy != reference_policy::file) commit(m.ref_n(), ref);
+        commit(m.rec_n(), rec);
       }
     }
     m.samples_total_ = c[0];
