@@ -138,6 +138,17 @@ std::string summary(const daemon_config& c, const std::map<std::string, std::siz
   else
     o << c.evaluation.threads << (c.evaluation.threads == 1 ? " thread" : " threads");
   o << ", seed " << c.evaluation.seed << "\n";
+  o << "  state       ";
+  if (c.state.data_dir.empty()) {
+    o << "no data directory: snapshots off, a restart starts every stream empty";
+  } else {
+    o << "snapshots in " << c.state.data_dir << ", ";
+    if (c.state.snapshot_interval_seconds > 0)
+      o << "every " << fmt(c.state.snapshot_interval_seconds) << " s and at a graceful stop";
+    else
+      o << "on request and at a graceful stop";
+  }
+  o << "\n";
   o << "  log         " << c.log.level << "\n";
   o << "  groups      " << c.groups.size() << ", tried in this order (the first match wins):\n";
   bool catch_all = false;

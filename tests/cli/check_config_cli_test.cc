@@ -46,6 +46,8 @@ TEST_CASE("check-config accepts the example configuration and summarises it", "[
   CHECK(out[0] == example + ": ok");
   CHECK_THAT(r.out, Contains("tcp 0.0.0.0:7301, udp off"));
   CHECK_THAT(r.out, Contains("groups      5, tried in this order"));
+  // The example leaves [state] data_dir at its default (config/plumbline.example.toml).
+  CHECK_THAT(r.out, Contains("state       no data directory: snapshots off"));
   CHECK_THAT(r.out, Contains("line_b_fill  \"larkspur/line_b/fill_*\""));
   CHECK_THAT(r.out, Contains("tests ad, welch"));
   CHECK_THAT(r.out, Contains("tolerance 0.5"));
