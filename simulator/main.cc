@@ -123,7 +123,12 @@ int run_send_command(const send_args& a) {
   truth t = make_truth(*s, s->seed, s->duration);
   auto rep = run_send(*s, o, std::cerr, a.truth.empty() ? nullptr : &t);
   if (!a.truth.empty()) {
-    // Also after a failure: the truth covers what was sent.
+    // Also after a failure or an early stop: the truth covers what was sent
+    // (the newest clock point is the offset of the newest record sent).
+    if (rep.ok() && rep.value().stopped)
+      clip_truth(t, *s, rep.value().simulated_seconds);
+    else if (!rep.ok())
+      clip_truth(t, *s, t.clock.empty() ? 0 : t.clock.back().second);
     if (auto w = write_truth(t, a.truth); !w.ok()) {
       std::cerr << "plumbline-sim: " << w.err().message << "\n";
       return 1;

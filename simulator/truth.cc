@@ -67,6 +67,14 @@ truth make_truth(const scenario& s, uint64_t seed, double duration) {
   return t;
 }
 
+void clip_truth(truth& t, const scenario& s, double sent) {
+  if (!(sent < t.duration)) return;
+  truth c = make_truth(s, t.seed, sent < 0 ? 0 : sent);
+  c.clock = std::move(t.clock);
+  std::erase_if(c.faults, [&](const truth_fault& f) { return f.start >= c.duration; });
+  t = std::move(c);
+}
+
 json truth_json(const truth& t) {
   json streams = json::array();
   for (const truth_stream& s : t.streams)

@@ -59,6 +59,12 @@ struct truth {
 };
 
 truth make_truth(const scenario& s, uint64_t seed, double duration);
+// The truth of a run that stopped early, after `sent` simulated seconds (the
+// offset of the newest record sent): the duration becomes `sent` (when
+// shorter), faults that had not begun by then are left out, and the others'
+// end samples are clipped to it, so that score counts only what was sent.
+// The clock is kept. REQUIRES: t = make_truth(s, ...) (plus clock points).
+void clip_truth(truth& t, const scenario& s, double sent);
 nlohmann::json truth_json(const truth& t);
 expected<truth> parse_truth(const nlohmann::json& j, const std::string& source);
 // `path` is a truth file, or a directory holding truth.json.

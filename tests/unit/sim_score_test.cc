@@ -5,6 +5,7 @@
 #include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
 
+#include "simulator/scenario.h"
 #include "simulator/score.h"
 #include "simulator/truth.h"
 
@@ -124,4 +125,59 @@ TEST_CASE("the truth survives a round trip through JSON", "[unit][sim]") {
   json broken = truth_json(t);
   broken["faults"][0]["stream"] = "nowhere";
   CHECK_FALSE(parse_truth(broken, "truth.json").ok());
+}
+
+TEST_CASE("a send stopped early leaves out the faults it never reached", "[unit][sim]") {
+  // Two faults on one 1 Hz sensor, at 100-200 s and 500-600 s; the send is
+  // stopped after 150 simulated seconds. Worked by hand from score.h.
+  const auto loaded = plumbline::sim::load_scenario_string(R"(
+[scenario]
+plant = "wren"
+duration_seconds = 1000.0
+grace_seconds = 30.0
+[[sensor]]
+line = "line1"
+station = "filler"
+name = "fill_volume"
+rate_hz = 1.0
+[[fault]]
+sensor = "wren.line1.filler.fill_volume"
+kind = "step"
+start_seconds = 100.0
+end_seconds = 200.0
+size = 1.0
+[[fault]]
+sensor = "wren.line1.filler.fill_volume"
+kind = "step"
+start_seconds = 500.0
+end_seconds = 600.0
+size = 1.0
+)",
+                                                           "early.toml");
+  REQUIRE(loaded.value.has_value());
+  const plumbline::sim::scenario& s = *loaded.value;
+  truth t = make_truth(s, 1, s.duration);
+  add_clock_point(t, 5000, 0);
+  REQUIRE(t.faults.size() == 2);
+  clip_truth(t, s, 150);
+  CHECK(t.duration == 150);
+  REQUIRE(t.faults.size() == 1);
+  CHECK(t.faults[0].first_sample == 100);
+  CHECK(t.faults[0].end_sample == 150);
+  CHECK(t.clock.size() == 1);
+  // No alarm: the fault that began is a miss, the one never sent is not
+  // counted; in control are the 100 s before the first fault only.
+  auto alarms = parse_alarms(json::array({answer("wren.line1.filler.fill_volume", {})}),
+                             "alarms.json");
+  REQUIRE(alarms.ok());
+  const score_report r = score(t, alarms.value(), t.grace);
+  REQUIRE(r.faults.size() == 1);
+  CHECK_FALSE(r.faults[0].detected);
+  CHECK(r.in_control_samples == 100);
+  CHECK(r.in_control_stream_hours == Approx(100.0 / 3600));
+  // A stop past the end changes nothing.
+  truth whole = make_truth(s, 1, s.duration);
+  clip_truth(whole, s, 2000);
+  CHECK(whole.duration == 1000);
+  CHECK(whole.faults.size() == 2);
 }
