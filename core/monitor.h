@@ -99,7 +99,7 @@ namespace plumbline {
 // 0x100000001b3), over the bytes of `text`.
 uint64_t fnv1a64(std::string_view text);
 
-// The generator seed of one stream:
+// The seed of one stream, from which its evaluations' seeds derive:
 //   mix(mix(daemon_seed) ^ fnv1a64(stream_name)),
 // where mix(x) is the first output of splitmix64 seeded with x (rng.h).
 // Integer arithmetic on fixed-width types only: identical on every platform.

@@ -2,8 +2,10 @@
 //
 // Purpose. A snapshot (daemon/snapshot.h) must carry everything that decides
 // what a stream does next: both windows with their running sums, the alarm
-// with its runs, totals and history, the monitor's counters and the
-// generator. This file turns those into a byte string and back. It knows
+// with its runs, totals and history, and the monitor's counters (a stream's
+// next random seed follows from its evaluation count; version 1 snapshots
+// also held a generator, whose codec is kept to read them). This file turns
+// those into a byte string and back. It knows
 // nothing of files: the daemon frames, checksums and stores the bytes.
 //
 // Encoding. Little-endian fixed-width integers (u8, u32, u64) and IEEE

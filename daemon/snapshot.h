@@ -3,15 +3,15 @@
 // Purpose. A reference window can take hours of production to collect; a
 // restart, a crash or a configuration change must not throw it away. The
 // daemon therefore writes every stream's state (windows, alarm, counters,
-// generator) to a data directory, periodically and at a graceful stop, and
+// evaluation count) to a data directory, periodically and at a graceful stop, and
 // restores the newest valid file at start. DEVELOPERS.md ("Snapshot format")
 // documents the byte layout; in short: a 48-byte header (magic "PLBLSNAP",
 // format version, section count, generation, file length, write time,
 // CRC-32C of the header), then sections, each a 16-byte header (kind,
 // CRC-32C of the payload, payload length) and its payload. Section 1 says
 // what the daemon was (seed, stream count); one section 2 per stream holds
-// its name, dimension, scheduling fields, generator and core state
-// (core/state_codec.h).
+// its name, dimension, scheduling fields and core state (core/state_codec.h);
+// in format version 1 a generator state came before the core state.
 //
 // Files in the data directory:
 //   snapshot-GGGGGGGGGGGGGGGG.plbs   a snapshot of generation G (16 lowercase
