@@ -61,6 +61,8 @@ def main():
     p.add_argument("--seed", type=int, default=1)
     p.add_argument("--json", action="store_true")
     a = p.parse_args()
+    # SIGTERM ends the run as Ctrl-C does: the finally clauses stop the daemon.
+    signal.signal(signal.SIGTERM, lambda *_: sys.exit(143))
     plumbline = os.path.join(a.build, "daemon", "plumbline")
     sim = os.path.join(a.build, "simulator", "plumbline-sim")
     with tempfile.TemporaryDirectory(prefix="plumbline-fa-") as tmp:

@@ -37,6 +37,7 @@ import argparse
 import json
 import os
 import re
+import signal
 import subprocess
 import sys
 import tempfile
@@ -221,6 +222,8 @@ def main():
     ap.add_argument("--no-in-process", action="store_true",
                     help="leave out part 1 (the in-process baselines)")
     args = ap.parse_args()
+    # SIGTERM ends the run as Ctrl-C does: the finally clauses stop the daemon.
+    signal.signal(signal.SIGTERM, lambda *_: sys.exit(143))
     seconds = args.seconds or (3 if args.quick else 10)
     streams = args.streams
     print(f"load average before: {loadavg()}")
